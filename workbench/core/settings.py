@@ -91,11 +91,11 @@ class Clean(_Section):
     #: ISO 3166 regions used to parse national phone formats.
     phone_regions: list[str] = Field(default_factory=list)
     #: Answers with fewer non-space characters are flagged ``too_short``.
-    min_chars: int = Field(default=2, ge=0)
+    min_chars: int = Field(default=2, ge=0, le=10_000)
     #: Normalised similarity in [0, 1] above which two answers are near-duplicates.
     near_duplicate: float = Field(default=0.92, ge=0.0, le=1.0)
     #: Near-duplicate search only compares answers at least this long.
-    near_duplicate_min_chars: int = Field(default=30, ge=1)
+    near_duplicate_min_chars: int = Field(default=30, ge=1, le=100_000)
     #: Whether answers flagged as non-answers/duplicates still enter weighting.
     flagged_enter_weighting: bool = False
     #: Extra non-answer phrases, all languages.
@@ -108,13 +108,13 @@ class Identify(_Section):
     #: Confidence bar in [0, 1]; below it the answer falls back.
     min_confidence: float = Field(default=0.8, ge=0.0, le=1.0)
     #: Answers with fewer letters fall back without detection.
-    min_letters: int = Field(default=8, ge=0)
+    min_letters: int = Field(default=8, ge=0, le=10_000)
     #: A second language must cover at least this many letters to flag mixing.
-    mixed_min_letters: int = Field(default=20, ge=1)
+    mixed_min_letters: int = Field(default=20, ge=1, le=100_000)
 
 
 class Terms(_Section):
-    min_length: int = Field(default=2, ge=1)
+    min_length: int = Field(default=2, ge=1, le=100)
     keep_numbers: bool = False
     keep_emoji: bool = True
     #: Longest n-gram formed (1 = single terms only).
@@ -140,10 +140,10 @@ class Weigh(_Section):
     #: Minimum document frequency: a count (int) or a share of answers (float < 1).
     min_df: int | float = 2
     max_df: int | float = 1.0
-    max_terms: int | None = Field(default=None, ge=1)
+    max_terms: int | None = Field(default=None, ge=1, le=100_000_000)
     #: How the pooled matrix names terms: language-tagged, or glossary concepts.
     pooled: Literal["tagged", "glossary"] = "tagged"
-    top_k: int = Field(default=30, ge=1)
+    top_k: int = Field(default=30, ge=1, le=100_000)
 
 
 class Compare(_Section):
@@ -152,17 +152,17 @@ class Compare(_Section):
     combinations: list[list[str]] = Field(default_factory=list)
     count: Literal["respondents", "tokens"] = "respondents"
     #: A term needs at least this many mentions in the group and the rest together.
-    min_freq: int = Field(default=5, ge=1)
-    min_group_size: int = Field(default=30, ge=1)
+    min_freq: int = Field(default=5, ge=1, le=1_000_000_000)
+    min_group_size: int = Field(default=30, ge=1, le=1_000_000_000)
     fdr: float = Field(default=0.05, gt=0.0, lt=1.0)
     #: Compare against this group value instead of the rest.
     reference: str | None = None
     glossary: Path | None = None
     dictionaries: list[Path] = Field(default_factory=list)
-    bootstrap: int = Field(default=200, ge=0)
-    top_k: int = Field(default=20, ge=1)
+    bootstrap: int = Field(default=200, ge=0, le=100_000)
+    top_k: int = Field(default=20, ge=1, le=100_000)
     kwic_terms: list[str] = Field(default_factory=list)
-    kwic_width: int = Field(default=40, ge=5)
+    kwic_width: int = Field(default=40, ge=5, le=10_000)
 
 
 class Export(_Section):
@@ -171,21 +171,21 @@ class Export(_Section):
     ] = Field(default_factory=lambda: ["csv", "xlsx", "json", "mtx", "npz", "parquet", "dta", "png", "svg"])
     dense_csv: bool = False
     #: Largest matrix (rows x columns) written as dense CSV.
-    dense_limit: int = Field(default=2_000_000, ge=1)
+    dense_limit: int = Field(default=2_000_000, ge=1, le=10**12)
 
 
 class Engine(_Section):
     kind: Literal["local", "dask"] = "local"
     scheduler: str | None = None
-    workers: int | None = Field(default=None, ge=1)
-    partition_rows: int = Field(default=50_000, ge=100)
+    workers: int | None = Field(default=None, ge=1, le=10_000)
+    partition_rows: int = Field(default=50_000, ge=100, le=100_000_000)
 
 
 class Study(_Section):
     """A fully resolved study: every section present, paths absolute."""
 
     study: StudyInfo = Field(default_factory=StudyInfo)
-    sources: list[Source] = Field(default_factory=list)
+    sources: list[Source] = Field(default_factory=list, validate_default=True)
     columns: Columns = Field(default_factory=Columns)
     languages: Languages = Field(default_factory=Languages)
     clean: Clean = Field(default_factory=Clean)
