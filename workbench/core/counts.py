@@ -14,7 +14,9 @@ class Counts:
 
     ``matrix`` is CSR, rows aligned with ``row_ids`` (answer ids), columns with
     ``terms``; ``weights`` holds one respondent weight per row (all ones when
-    the study has no weight column).
+    the study has no weight column); ``lengths`` holds the number of terms of
+    each answer before any document-frequency filter (``None`` means the row
+    sums), the denominator of relative term frequency.
     """
 
     matrix: sp.csr_matrix
@@ -22,6 +24,7 @@ class Counts:
     row_ids: np.ndarray
     weights: np.ndarray
     language: str
+    lengths: np.ndarray | None = None
 
     def __post_init__(self) -> None:
         rows, cols = self.matrix.shape
@@ -30,3 +33,5 @@ class Counts:
                 f"counts of '{self.language}' are misaligned: matrix {rows}x{cols}, "
                 f"{len(self.row_ids)} row ids, {len(self.terms)} terms, {len(self.weights)} weights"
             )
+        if self.lengths is not None and len(self.lengths) != rows:
+            raise ValueError(f"counts of '{self.language}' are misaligned: {rows} rows, {len(self.lengths)} lengths")
