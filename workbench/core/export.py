@@ -1,0 +1,609 @@
+"""Write one run's outputs into an output folder that R, Python, Stata and spreadsheets open as is.
+
+Layout of the output folder (formats from ``study.export.formats``; a stage
+that did not run writes nothing)::
+
+    manifest.json                 written last: settings, versions, inputs, counts,
+                                  timings, notes, size + SHA-256 of every file below
+    ledger.csv  ledger.parquet    every event of every input row and answer
+    corpus/
+      answers.parquet             one row per answer: ids, question, source, row,
+      answers.csv                 raw and cleaned text, masks, flags, language,
+                                  confidence, terms, in_matrix (entered a matrix)...
+      respondents.dta             Stata 14+ (format 118, UTF-8): one row per respondent,
+      respondents.parquet         answer counts, one 0/1 variable per flag code, one
+      respondents.csv             0/1 variable per glossary concept; merge on respondent_id
+    matrices/                     per language code and ``pooled`` (see matrices.py):
+      <lang>.terms.txt  <lang>.rows.txt
+      <lang>.weights.mtx  <lang>.counts.mtx  <lang>.weights.npz  <lang>.counts.npz
+      <lang>.parquet              long form: row_id, term, weight, count
+      <lang>.dense.csv            only with export.dense_csv, under export.dense_limit
+    keywords/
+      <name>.csv  <name>.json     top keywords per language (weigh stage)
+      keywords.xlsx               one sheet per table
+    compare/
+      <name>.csv  <name>.json     keyness, group keywords, concepts, stability, KWIC...
+      compare.xlsx                one sheet per table
+    charts/
+      keywords-<name>.png/.svg    top keywords per language and per group
+      concepts.png/.svg           concepts across languages (with a glossary)
+
+File names made from table names, languages or group values are sanitised by
+:func:`safe_name`: no path separators, no ``..``, no control characters, at
+most 100 bytes, unique even on case-insensitive file systems.
+
+Every file is written atomically (see :mod:`workbench.core.atomic`). CSV and
+XLSX text cells are protected against formula injection (see
+:mod:`workbench.core.tables`); Parquet, JSON and the matrix files keep the
+exact text.
+
+Re-running into the same folder replaces each file atomically. Files the
+previous run listed in its manifest that this run does not write are deleted
+(they were termloom's own outputs and would otherwise be mistaken for current
+ones); files termloom never listed are left alone, and ``verify`` reports them
+as extra. The manifest lists exactly what this run wrote.
+"""
+
+from __future__ import annotations
+
+import re
+import time
+import unicodedata
+from collections import Counter
+from collections.abc import Callable, Iterable
+from pathlib import Path, PurePosixPath
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+import pandas as pd
+import scipy.sparse as sp
+
+from workbench.core import corpus as C
+from workbench.core.atomic import TEMP_PREFIX, atomic_path, describe_os_error, remove_stale_temps
+from workbench.core.charts import concept_chart, concept_matrix, keyword_chart, save_figure, top_terms
+from workbench.core.errors import InputError, OutputError
+from workbench.core.manifest import MANIFEST_NAME, read_manifest, run_content, write_manifest
+from workbench.core.matrices import check_dense, write_dense_csv, write_lines, write_long_parquet, write_mtx, write_npz
+from workbench.core.progress import Reporter
+from workbench.core.tables import to_jsonable, write_csv, write_json_table, write_stata, write_xlsx
+
+if TYPE_CHECKING:
+    from workbench.core.pipeline import RunOutputs
+
+STAGE = "export"
+POOLED = "pooled"
+
+#: Answers-table columns in the order the corpus export writes them; other columns follow.
+ANSWER_COLUMNS: tuple[str, ...] = (
+    C.ANSWER_ID,
+    C.RESPONDENT_ID,
+    C.QUESTION,
+    C.SOURCE,
+    C.ROW,
+    C.RAW_TEXT,
+    C.CLEAN_TEXT,
+    C.MASKS,
+    C.FLAGS,
+    C.DUPLICATE_OF,
+    C.ENTERS_WEIGHTING,
+    C.LANGUAGE,
+    C.CONFIDENCE,
+    C.LANGUAGE_SOURCE,
+    C.MIXED,
+    C.SECOND_LANGUAGE,
+    C.TERMS,
+)
+IN_MATRIX = "in_matrix"
+
+_WINDOWS_RESERVED = frozenset(
+    {"con", "prn", "aux", "nul", *(f"com{i}" for i in range(1, 10)), *(f"lpt{i}" for i in range(1, 10))}
+)
+_NAME_MAX_BYTES = 100
+
+
+# --------------------------------------------------------------------------- names
+
+
+def safe_name(text: object, used: set[str] | None = None, max_bytes: int = _NAME_MAX_BYTES) -> str:
+    """A file-name part made from ``text``: safe on every common file system, unique within ``used``.
+
+    Letters and digits of any script are kept (after Unicode NFC); every other
+    character (path separators, spaces, colons, control characters...) becomes
+    ``-``; runs of dots collapse so no ``..`` remains; leading/trailing dots and
+    dashes go; Windows device names get a ``_``; the result is cut to
+    ``max_bytes`` bytes of UTF-8. ``used`` holds case-folded names already
+    taken; a clash gets ``-2``, ``-3``... and the new name is added to it.
+    """
+    name = unicodedata.normalize("NFC", str(text))
+    name = "".join(ch if ch.isalnum() or ch in "._+-" else "-" for ch in name)
+    name = re.sub(r"-{2,}", "-", re.sub(r"\.{2,}", ".", name)).strip("-._") or "x"
+    if name.split(".")[0].lower() in _WINDOWS_RESERVED:
+        name += "_"
+    name = _cut_bytes(name, max_bytes)
+    if used is None:
+        return name
+    candidate, number = name, 2
+    while candidate.casefold() in used:
+        suffix = f"-{number}"
+        candidate = _cut_bytes(name, max_bytes - len(suffix)) + suffix
+        number += 1
+    used.add(candidate.casefold())
+    return candidate
+
+
+def _cut_bytes(text: str, limit: int) -> str:
+    encoded = text.encode("utf-8")
+    if len(encoded) <= limit:
+        return text
+    return encoded[:limit].decode("utf-8", errors="ignore").rstrip("-.") or "x"
+
+
+# --------------------------------------------------------------------------- folder
+
+
+def prepare_folder(out_dir: Path) -> Path:
+    """Create ``out_dir`` if needed and prove it is writable; one-line :class:`OutputError` otherwise."""
+    out_dir = Path(out_dir)
+    if out_dir.exists() and not out_dir.is_dir():
+        raise OutputError(f"output folder {out_dir} is a file; give the path of a folder (it is created if missing)")
+    try:
+        out_dir.mkdir(parents=True, exist_ok=True)
+        probe = out_dir / f"{TEMP_PREFIX}probe"
+        probe.write_bytes(b"")
+        probe.unlink()
+    except OSError as exc:
+        raise OutputError(describe_os_error(exc, out_dir)) from None
+    remove_stale_temps(out_dir)
+    return out_dir
+
+
+def _previous_files(out_dir: Path) -> set[str]:
+    """Files the previous run in this folder listed, as safe relative POSIX paths."""
+    if not (out_dir / MANIFEST_NAME).is_file():
+        return set()
+    try:
+        manifest = read_manifest(out_dir)
+    except (InputError, OSError):
+        # A damaged old manifest only means nothing is deleted; verify lists the leftovers.
+        return set()
+    found = set()
+    for entry in manifest["files"]:
+        text = entry.get("path") if isinstance(entry, dict) else None
+        if isinstance(text, str) and text:
+            path = PurePosixPath(text)
+            if not path.is_absolute() and ".." not in path.parts and "\\" not in text:
+                found.add(path.as_posix())
+    return found
+
+
+class _Sink:
+    """Collects what the export wrote and the notes it made, and reports progress."""
+
+    def __init__(self, root: Path, formats: Iterable[str], reporter: Reporter, total: int) -> None:
+        self.root = root
+        self.formats = set(formats)
+        self.reporter = reporter
+        self.files: list[Path] = []
+        self.notes: list[str] = []
+        self.total = total
+        self.done = 0
+
+    def wants(self, *formats: str) -> bool:
+        return bool(self.formats.intersection(formats))
+
+    def path(self, *parts: str) -> Path:
+        path = self.root.joinpath(*parts)
+        try:
+            path.parent.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            raise OutputError(describe_os_error(exc, path.parent)) from None
+        return path
+
+    def add(self, path: Path, notes: Iterable[str] = ()) -> None:
+        self.files.append(path)
+        self.notes.extend(notes)
+
+    def step(self, message: str) -> None:
+        self.done += 1
+        self.reporter.update(STAGE, min(self.done, self.total), self.total, message)
+
+
+# --------------------------------------------------------------------------- entry point
+
+
+def write_run(out_dir: Path, run: RunOutputs, reporter: Reporter) -> list[Path]:
+    """Write every output of ``run`` into ``out_dir``; return the files written, manifest last.
+
+    Parameters
+    ----------
+    out_dir
+        The output folder; created if missing. See the module docstring for
+        its layout.
+    run
+        What the pipeline produced; stages that did not run (``None``) are
+        skipped, and what exists is written.
+    reporter
+        Progress and cancellation. A cancelled export leaves every file either
+        old or new, and no new manifest.
+
+    Raises
+    ------
+    OutputError
+        The folder is a file, cannot be written, the disk filled up, or a
+        requested dense CSV would be too large. Temporary files are removed.
+    """
+    begin = time.perf_counter()
+    study = run.study
+    settings = study.export
+    out_dir = prepare_folder(Path(out_dir))
+    _check_dense_sizes(run)
+    previous = _previous_files(out_dir)
+    sink = _Sink(out_dir, settings.formats, reporter, total=8)
+    reporter.update(STAGE, 0, sink.total, f"writing to {out_dir}")
+    try:
+        _write_ledger(sink, run)
+        sink.step("ledger")
+        answers = _answers_for_export(run)
+        _write_corpus(sink, answers)
+        sink.step("corpus")
+        _write_respondents(sink, run, answers)
+        sink.step("respondents")
+        _write_matrices(sink, run)
+        sink.step("matrices")
+        _write_table_group(sink, "keywords", _keyword_tables(run))
+        sink.step("keywords")
+        _write_table_group(sink, "compare", _compare_tables(run))
+        sink.step("compare tables")
+        _write_charts(sink, run)
+        sink.step("charts")
+        written = {p.resolve().relative_to(out_dir.resolve()).as_posix() for p in sink.files}
+        removed = _remove_stale(out_dir, previous - written - {MANIFEST_NAME})
+        content = run_content(run, sink.notes, removed, time.perf_counter() - begin)
+        manifest = write_manifest(out_dir, content, sink.files)
+        sink.step("manifest")
+    except OSError as exc:
+        where = Path(exc.filename) if getattr(exc, "filename", None) else out_dir
+        raise OutputError(describe_os_error(exc, where)) from None
+    return [*sink.files, manifest]
+
+
+def _check_dense_sizes(run: RunOutputs) -> None:
+    settings = run.study.export
+    if not settings.dense_csv or run.weighed is None:
+        return
+    for name, matrix in _weighted_matrices(run.weighed).items():
+        check_dense(name, matrix.shape, settings.dense_limit)
+
+
+def _remove_stale(out_dir: Path, stale: set[str]) -> list[str]:
+    removed = []
+    for relative in sorted(stale):
+        path = out_dir / relative
+        if path.is_file():
+            path.unlink()
+            removed.append(relative)
+            parent = path.parent
+            while parent != out_dir and parent.is_dir() and not any(parent.iterdir()):
+                parent.rmdir()
+                parent = parent.parent
+    return removed
+
+
+# --------------------------------------------------------------------------- ledger and corpus
+
+
+def _write_ledger(sink: _Sink, run: RunOutputs) -> None:
+    frame = run.ledger.frame()
+    if sink.wants("csv"):
+        sink.add(write_csv(sink.path("ledger.csv"), frame))
+    if sink.wants("parquet"):
+        sink.add(_write_parquet(sink.path("ledger.parquet"), frame, sink.notes))
+
+
+def _matrix_rows(run: RunOutputs) -> set[str] | None:
+    weighed = run.weighed
+    if weighed is None:
+        return None
+    rows: set[str] = set()
+    for counts in (getattr(weighed, "counts", None) or {}).values():
+        rows.update(str(r) for r in counts.row_ids)
+    return rows
+
+
+def _answers_for_export(run: RunOutputs) -> pd.DataFrame | None:
+    try:
+        answers = run.answers
+    except ValueError:
+        answers = run.corpus.answers if run.corpus is not None else None
+    if answers is None:
+        return None
+    answers = answers.copy()
+    rows = _matrix_rows(run)
+    if rows is not None and C.ANSWER_ID in answers:
+        answers[IN_MATRIX] = answers[C.ANSWER_ID].astype(str).isin(rows)
+    first = [c for c in ANSWER_COLUMNS if c in answers.columns]
+    if IN_MATRIX in answers.columns:
+        first.append(IN_MATRIX)
+    return answers[first + [c for c in answers.columns if c not in first]]
+
+
+def _masks_as_records(value: Any) -> Any:
+    if isinstance(value, (list, tuple, np.ndarray)):
+        out = []
+        for item in value:
+            if isinstance(item, (list, tuple)) and len(item) == 3:
+                out.append({"type": str(item[0]), "start": int(item[1]), "end": int(item[2])})
+            elif isinstance(item, dict):
+                out.append(item)
+        return out
+    return value
+
+
+def _write_corpus(sink: _Sink, answers: pd.DataFrame | None) -> None:
+    if answers is None:
+        return
+    if sink.wants("parquet"):
+        frame = answers.copy()
+        if C.MASKS in frame:
+            frame[C.MASKS] = frame[C.MASKS].map(_masks_as_records)
+        sink.add(_write_parquet(sink.path("corpus", "answers.parquet"), frame, sink.notes))
+    if sink.wants("csv"):
+        sink.add(write_csv(sink.path("corpus", "answers.csv"), answers))
+
+
+def _write_parquet(path: Path, frame: pd.DataFrame, notes: list[str]) -> Path:
+    """Parquet with exact text; a column pyarrow cannot type is stored as text, with a note."""
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    frame = frame.reset_index(drop=True)
+    frame.columns = [str(c) for c in frame.columns]
+    arrays = {}
+    for column in frame.columns:
+        try:
+            arrays[column] = pa.array(frame[column], from_pandas=True)
+        except (pa.ArrowInvalid, pa.ArrowTypeError, pa.ArrowNotImplementedError):
+            arrays[column] = pa.array(frame[column].map(_as_text), type=pa.string(), from_pandas=True)
+            notes.append(f"{path.name}: column '{column}' holds mixed values and was stored as text (JSON for lists)")
+    table = pa.table(arrays) if arrays else pa.table({})
+    with atomic_path(path) as tmp:
+        pq.write_table(table, str(tmp), compression="zstd")
+    return path
+
+
+def _as_text(value: Any) -> str | None:
+    import json
+
+    if value is None or (isinstance(value, float) and np.isnan(value)):
+        return None
+    if isinstance(value, str):
+        return value
+    return json.dumps(to_jsonable(value), ensure_ascii=False)
+
+
+# --------------------------------------------------------------------------- respondents (Stata)
+
+def respondent_table(run: RunOutputs, answers: pd.DataFrame | None) -> pd.DataFrame | None:
+    """One row per respondent: answer counts, 0/1 per flag code, 0/1 per glossary concept.
+
+    ``flag_<code>`` is 1 when any of the respondent's answers carries that flag.
+    ``c_<concept>`` is 1 when any of the respondent's answers that entered a
+    matrix (all answers when weighting did not run) contains a term the
+    glossary maps to that concept in the answer's language.
+    """
+    base = run.corpus.respondents if run.corpus is not None else None
+    if base is None and answers is None:
+        return None
+    if base is not None and C.RESPONDENT_ID in base:
+        keep = [c for c in (C.RESPONDENT_ID, C.SOURCE, C.ROW) if c in base.columns]
+        table = base[keep].copy()
+    else:
+        table = pd.DataFrame({C.RESPONDENT_ID: pd.unique(answers[C.RESPONDENT_ID])})
+    table[C.RESPONDENT_ID] = table[C.RESPONDENT_ID].astype(str)
+    if answers is None or C.RESPONDENT_ID not in answers:
+        return table.reset_index(drop=True)
+    ids = answers[C.RESPONDENT_ID].astype(str)
+    table["n_answers"] = table[C.RESPONDENT_ID].map(ids.value_counts()).fillna(0).astype(np.int32)
+    if IN_MATRIX in answers:
+        in_matrix = ids[answers[IN_MATRIX].to_numpy(dtype=bool)]
+        table["n_in_matrix"] = table[C.RESPONDENT_ID].map(in_matrix.value_counts()).fillna(0).astype(np.int32)
+    if C.LANGUAGE in answers:
+        main = answers.assign(_id=ids).groupby("_id")[C.LANGUAGE].agg(_most_common)
+        table["language"] = table[C.RESPONDENT_ID].map(main).fillna("").astype(str)
+    if C.FLAGS in answers:
+        flagged: dict[str, set[str]] = {}
+        for rid, flags in zip(ids, answers[C.FLAGS], strict=True):
+            for flag in _as_list(flags):
+                flagged.setdefault(str(flag), set()).add(rid)
+        for flag in sorted(flagged):
+            table[f"flag_{flag}"] = table[C.RESPONDENT_ID].isin(flagged[flag]).astype(np.int8)
+    mapping = getattr(run.glossary, "mapping", None) if run.glossary is not None else None
+    if mapping and C.TERMS in answers and C.LANGUAGE in answers:
+        use = answers[IN_MATRIX].to_numpy(dtype=bool) if IN_MATRIX in answers else np.ones(len(answers), bool)
+        having: dict[str, set[str]] = {str(c): set() for c in sorted(set(mapping.values()), key=str)}
+        for rid, language, terms, ok in zip(ids, answers[C.LANGUAGE], answers[C.TERMS], use, strict=True):
+            if not ok:
+                continue
+            for term in _as_list(terms):
+                concept = mapping.get((language, term))
+                if concept is not None:
+                    having[str(concept)].add(rid)
+        for concept, members in having.items():
+            table[f"c_{concept}"] = table[C.RESPONDENT_ID].isin(members).astype(np.int8)
+    return table.reset_index(drop=True)
+
+
+def _as_list(value: Any) -> list[Any]:
+    if isinstance(value, (list, tuple, np.ndarray)):
+        return list(value)
+    return []
+
+
+def _most_common(values: pd.Series) -> str:
+    counts = Counter(v for v in values if isinstance(v, str) and v)
+    if not counts:
+        return ""
+    best = max(counts.values())
+    return sorted(v for v, n in counts.items() if n == best)[0]
+
+
+def _write_respondents(sink: _Sink, run: RunOutputs, answers: pd.DataFrame | None) -> None:
+    if not sink.wants("dta", "csv", "parquet"):
+        return
+    table = respondent_table(run, answers)
+    if table is None:
+        return
+    if sink.wants("parquet"):
+        sink.add(_write_parquet(sink.path("corpus", "respondents.parquet"), table, sink.notes))
+    if sink.wants("csv"):
+        sink.add(write_csv(sink.path("corpus", "respondents.csv"), table))
+    if sink.wants("dta"):
+        stamp = run.finished or run.started
+        sink.add(write_stata(sink.path("corpus", "respondents.dta"), table, str(run.study.study.name), stamp))
+
+
+# --------------------------------------------------------------------------- matrices
+
+
+def _weighted_matrices(weighed: Any) -> dict[str, sp.csr_matrix]:
+    out = dict(getattr(weighed, "weighted", None) or {})
+    pooled = getattr(weighed, "pooled_weighted", None)
+    if pooled is not None:
+        out[POOLED] = pooled
+    return out
+
+
+def _matrix_sets(weighed: Any) -> list[tuple[str, Any, Any]]:
+    """``(name, Counts or None, weighted CSR or None)`` per language, then pooled."""
+    counts = dict(getattr(weighed, "counts", None) or {})
+    weighted = dict(getattr(weighed, "weighted", None) or {})
+    sets = [(lang, counts.get(lang), weighted.get(lang)) for lang in sorted(set(counts) | set(weighted))]
+    pooled_counts = getattr(weighed, "pooled", None)
+    pooled_weighted = getattr(weighed, "pooled_weighted", None)
+    if pooled_counts is not None or pooled_weighted is not None:
+        sets.append((POOLED, pooled_counts, pooled_weighted))
+    return sets
+
+
+def _mtx_comment(run: RunOutputs, name: str, values: str, stem: str) -> str:
+    scheme = getattr(run.weighed, "scheme", None)
+    described = scheme.describe() if hasattr(scheme, "describe") else (str(scheme) if scheme is not None else "")
+    what = "term counts" if values == "counts" else f"weights ({described})" if described else "weights"
+    return (
+        f"termloom: matrix '{name}' of study '{run.study.study.name}': {what}\n"
+        f"rows = answers in {stem}.rows.txt, columns = terms in {stem}.terms.txt (same order)"
+    )
+
+
+def _write_matrices(sink: _Sink, run: RunOutputs) -> None:
+    weighed = run.weighed
+    if weighed is None:
+        return
+    study = run.study
+    used: set[str] = set()
+    for name, counts, weighted in _matrix_sets(weighed):
+        sink.reporter.check(STAGE)
+        if counts is None:
+            sink.notes.append(f"matrix '{name}': no term list or row ids were handed on; it was not written")
+            continue
+        if weighted is not None and weighted.shape != counts.matrix.shape:
+            sink.notes.append(
+                f"matrix '{name}': weights are {weighted.shape[0]}x{weighted.shape[1]} but counts "
+                f"{counts.matrix.shape[0]}x{counts.matrix.shape[1]}; only counts were written"
+            )
+            weighted = None
+        stem = safe_name(name, used)
+        terms = [str(t) for t in counts.terms]
+        rows = [str(r) for r in counts.row_ids]
+        if sink.wants("mtx", "npz") or study.export.dense_csv:
+            for kind, entries in (("terms", terms), ("rows", rows)):
+                path, changed = write_lines(sink.path("matrices", f"{stem}.{kind}.txt"), entries)
+                sink.add(path)
+                if changed:
+                    sink.notes.append(
+                        f"{path.name}: {changed} entr(y/ies) contained line breaks, written with spaces; "
+                        f"matrices/{stem}.parquet keeps the exact text"
+                    )
+        for kind, matrix in (("weights", weighted), ("counts", counts.matrix)):
+            if matrix is None:
+                continue
+            if sink.wants("mtx"):
+                comment = _mtx_comment(run, name, kind, stem)
+                sink.add(write_mtx(sink.path("matrices", f"{stem}.{kind}.mtx"), matrix, comment))
+            if sink.wants("npz"):
+                sink.add(write_npz(sink.path("matrices", f"{stem}.{kind}.npz"), matrix))
+        if sink.wants("parquet"):
+            path = sink.path("matrices", f"{stem}.parquet")
+            sink.add(write_long_parquet(path, weighted, counts.matrix, terms, rows))
+        if study.export.dense_csv:
+            dense = weighted if weighted is not None else counts.matrix
+            path = sink.path("matrices", f"{stem}.dense.csv")
+            sink.add(write_dense_csv(path, dense, terms, rows, study.export.dense_limit))
+
+
+# --------------------------------------------------------------------------- tables
+
+
+def _keyword_tables(run: RunOutputs) -> dict[str, pd.DataFrame]:
+    keywords = getattr(run.weighed, "keywords", None) if run.weighed is not None else None
+    return {str(k): v for k, v in (keywords or {}).items() if isinstance(v, pd.DataFrame)}
+
+
+def _compare_tables(run: RunOutputs) -> dict[str, pd.DataFrame]:
+    tables = getattr(run.compared, "tables", None) if run.compared is not None else None
+    return {str(k): v for k, v in (tables or {}).items() if isinstance(v, pd.DataFrame)}
+
+
+def _write_table_group(sink: _Sink, folder: str, tables: dict[str, pd.DataFrame]) -> None:
+    if not tables:
+        return
+    used: set[str] = set()
+    for name, frame in tables.items():
+        sink.reporter.check(STAGE)
+        stem = safe_name(name, used)
+        if sink.wants("csv"):
+            sink.add(write_csv(sink.path(folder, f"{stem}.csv"), frame))
+        if sink.wants("json"):
+            sink.add(write_json_table(sink.path(folder, f"{stem}.json"), frame))
+    if sink.wants("xlsx"):
+        path, notes = write_xlsx(sink.path(folder, f"{folder}.xlsx"), tables)
+        sink.add(path, notes)
+
+
+# --------------------------------------------------------------------------- charts
+
+def _group_keyword_tables(tables: dict[str, pd.DataFrame]) -> dict[str, pd.DataFrame]:
+    return {name: frame for name, frame in tables.items() if name.lower().startswith(("keywords", "top"))}
+
+
+def _write_charts(sink: _Sink, run: RunOutputs) -> None:
+    kinds = [k for k in ("png", "svg") if sink.wants(k)]
+    if not kinds:
+        return
+    top_k = run.study.compare.top_k
+    used: set[str] = set()
+    charts: list[tuple[str, Callable[[], Any]]] = []
+    for name, frame in _keyword_tables(run).items():
+        top = top_terms(frame, top_k)
+        if top is not None:
+            charts.append((f"keywords-{name}", _bar(top, f"Top keywords — {name}")))
+    for name, frame in _group_keyword_tables(_compare_tables(run)).items():
+        top = top_terms(frame, top_k)
+        if top is not None:
+            charts.append((f"keywords-{name}", _bar(top, f"Top keywords — {name}")))
+    concepts = concept_matrix(_compare_tables(run))
+    if concepts is not None:
+        xlabel, wide = concepts
+        charts.append(("concepts", lambda: concept_chart(wide.head(top_k), "Concepts across languages", xlabel)))
+    for stem, make in charts:
+        sink.reporter.check(STAGE)
+        figure = make()
+        name = safe_name(stem, used)
+        for kind in kinds:
+            path, notes = save_figure(figure, sink.path("charts", f"{name}.{kind}"))
+            sink.add(path, notes)
+
+
+def _bar(top: tuple[list[str], list[float], str], title: str) -> Callable[[], Any]:
+    terms, values, column = top
+    return lambda: keyword_chart(terms, values, title, column)

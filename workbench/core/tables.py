@@ -1,0 +1,407 @@
+"""Writing tables for people and programs: CSV, XLSX and JSON.
+
+CSV and XLSX are opened by spreadsheets, so text cells there are protected
+against formula injection (OWASP, "CSV Injection"): a text cell that begins
+with ``=``, ``+``, ``-``, ``@``, tab, carriage return or line feed gets a
+leading single quote, so the spreadsheet shows it as text instead of running
+it. Only *text* cells are touched: a number stays a number (``-0.5`` in a
+numeric column is written as the number -0.5). CSV quotes every text cell and
+doubles embedded double quotes (RFC 4180 §2.6–2.7), so a delimiter inside a
+cell never starts a new, unprotected cell. JSON (and Parquet, elsewhere) keep
+the exact text.
+
+Spreadsheet limits (Microsoft, "Excel specifications and limits"
+[recalled from memory]): 1,048,576 rows and 16,384 columns per sheet,
+32,767 characters per cell. A table longer than a sheet continues on further
+sheets (``name``, ``name (2)``...); a cell longer than the limit is cut and
+ends with a visible marker pointing to the JSON/Parquet output, which keep the
+full text; both produce a note for the manifest. A table wider than a sheet is
+refused (write CSV or Parquet instead).
+"""
+
+from __future__ import annotations
+
+import csv
+import dataclasses
+import datetime as _dt
+import json
+import math
+import re
+import unicodedata
+from collections.abc import Iterable, Mapping
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from workbench.core.atomic import atomic_open, atomic_path
+from workbench.core.errors import OutputError
+
+#: First characters that make a spreadsheet read a cell as a formula (OWASP, "CSV Injection").
+FORMULA_TRIGGERS: tuple[str, ...] = ("=", "+", "-", "@", "\t", "\r", "\n")
+
+#: Excel's per-sheet and per-cell limits [recalled from memory].
+EXCEL_MAX_ROWS = 1_048_576
+EXCEL_MAX_COLUMNS = 16_384
+EXCEL_MAX_CELL_CHARS = 32_767
+#: Sheet names: at most 31 characters, none of these (Excel's rule [recalled from memory]).
+_SHEET_FORBIDDEN = re.compile(r"[\[\]:*?/\\]")
+_SHEET_MAX = 31
+
+
+def neutralise(text: str) -> str:
+    """Prefix a single quote when ``text`` would start a spreadsheet formula.
+
+    >>> neutralise("=1+1"), neutralise("plain"), neutralise("-2")
+    ("'=1+1", 'plain', "'-2")
+    """
+    if text and text[0] in FORMULA_TRIGGERS:
+        return "'" + text
+    return text
+
+
+def to_jsonable(value: Any) -> Any:
+    """Turn numpy/pandas scalars and containers into plain JSON values (NaN -> ``None``).
+
+    Floats keep every digit (``json`` writes the shortest repr that round-trips).
+    """
+    if value is None or isinstance(value, (bool, str)):
+        return value
+    if isinstance(value, (np.bool_,)):
+        return bool(value)
+    if isinstance(value, (int, np.integer)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        number = float(value)
+        return number if math.isfinite(number) else (None if math.isnan(number) else ("inf" if number > 0 else "-inf"))
+    if isinstance(value, Mapping):
+        return {str(k): to_jsonable(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple, set, frozenset, np.ndarray)):
+        items = sorted(value, key=str) if isinstance(value, (set, frozenset)) else value
+        return [to_jsonable(v) for v in items]
+    if isinstance(value, (pd.Timestamp, _dt.datetime, _dt.date)):
+        return value.isoformat()
+    if isinstance(value, Path):
+        return value.as_posix()
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        return {f.name: to_jsonable(getattr(value, f.name)) for f in dataclasses.fields(value)}
+    if value is pd.NA or value is pd.NaT:
+        return None
+    return str(value)
+
+
+def _cell_text(value: Any) -> Any:
+    """Containers become JSON text so one cell holds one readable value."""
+    if isinstance(value, (list, tuple, dict, set, frozenset, np.ndarray)):
+        return json.dumps(to_jsonable(value), ensure_ascii=False)
+    return value
+
+
+def _is_text_column(series: pd.Series) -> bool:
+    return not (
+        pd.api.types.is_numeric_dtype(series.dtype)
+        or pd.api.types.is_bool_dtype(series.dtype)
+        or pd.api.types.is_datetime64_any_dtype(series.dtype)
+    )
+
+
+def spreadsheet_frame(frame: pd.DataFrame) -> pd.DataFrame:
+    """A copy safe to open in a spreadsheet: containers as JSON text, text cells neutralised.
+
+    Numeric, boolean and date columns are returned unchanged; in mixed
+    (object) columns only the ``str`` cells are neutralised, numbers stay numbers.
+    Column names are neutralised too (they become the header row).
+    """
+    out = frame.copy()
+    for column in out.columns:
+        series = out[column]
+        if _is_text_column(series):
+            out[column] = series.astype(object).map(
+                lambda v: neutralise(t) if isinstance(t := _cell_text(v), str) else t
+            )
+    out.columns = [neutralise(str(c)) for c in out.columns]
+    return out
+
+
+# --------------------------------------------------------------------------- CSV
+
+
+def write_csv(path: Path, frame: pd.DataFrame) -> Path:
+    """Write ``frame`` as CSV for spreadsheets: UTF-8 with BOM, CRLF, text quoted and neutralised.
+
+    The BOM lets spreadsheet programs recognise UTF-8 (accents, Greek,
+    Cyrillic); CRLF line ends and quoting follow RFC 4180.
+    """
+    safe = spreadsheet_frame(frame)
+    with atomic_open(path, "w", encoding="utf-8-sig", newline="") as handle:
+        safe.to_csv(handle, index=False, quoting=csv.QUOTE_NONNUMERIC, lineterminator="\r\n")
+    return path
+
+
+# --------------------------------------------------------------------------- JSON
+
+
+def json_records(frame: pd.DataFrame) -> list[dict[str, Any]]:
+    """Rows of ``frame`` as plain dicts with exact text and full-precision numbers."""
+    columns = [str(c) for c in frame.columns]
+    return [
+        {column: to_jsonable(value) for column, value in zip(columns, row, strict=True)}
+        for row in frame.itertuples(index=False, name=None)
+    ]
+
+
+def write_json_table(path: Path, frame: pd.DataFrame) -> Path:
+    """Write ``frame`` as a JSON array of records, one record per line, exact text."""
+    with atomic_open(path, "w", encoding="utf-8", newline="\n") as handle:
+        handle.write("[")
+        for number, record in enumerate(json_records(frame)):
+            handle.write("\n" if number == 0 else ",\n")
+            handle.write(json.dumps(record, ensure_ascii=False, allow_nan=False))
+        handle.write("\n]\n")
+    return path
+
+
+def write_json(path: Path, data: Any) -> Path:
+    """Write any JSON-ready value (after :func:`to_jsonable`), indented, exact text."""
+    text = json.dumps(to_jsonable(data), ensure_ascii=False, allow_nan=False, indent=2)
+    with atomic_open(path, "w", encoding="utf-8", newline="\n") as handle:
+        handle.write(text + "\n")
+    return path
+
+
+# --------------------------------------------------------------------------- XLSX
+
+
+def sheet_name(name: str, used: set[str]) -> str:
+    """A valid, unique Excel sheet name derived from ``name``.
+
+    Forbidden characters ``[ ] : * ? / \\`` become ``_``, leading/trailing
+    apostrophes are dropped, the name is cut to 31 characters and made unique
+    (case-insensitively, as Excel compares them) with a `` (2)`` suffix.
+    """
+    base = _SHEET_FORBIDDEN.sub("_", "".join(ch if ch.isprintable() else "_" for ch in str(name)))
+    base = base.strip("'").strip() or "table"
+    if base.lower() == "history":  # reserved by Excel
+        base = "history_"
+    candidate = base[:_SHEET_MAX]
+    number = 2
+    while candidate.lower() in used:
+        suffix = f" ({number})"
+        candidate = base[: _SHEET_MAX - len(suffix)] + suffix
+        number += 1
+    used.add(candidate.lower())
+    return candidate
+
+
+def _utf16_len(text: str) -> int:
+    return len(text.encode("utf-16-le")) // 2
+
+
+def fit_cell(text: str, limit: int = EXCEL_MAX_CELL_CHARS) -> tuple[str, bool]:
+    """Cut ``text`` to Excel's cell limit (counted in UTF-16 units, as Excel counts).
+
+    Returns the text and whether it was cut. A cut cell ends with a visible
+    marker saying how long the full text is and where to find it.
+    """
+    if len(text) <= limit // 2 or _utf16_len(text) <= limit:
+        return text, False
+    marker = f" …[cut: {len(text):,} characters in full; see the JSON or Parquet output]"
+    room = limit - _utf16_len(marker)
+    kept, used = [], 0
+    for ch in text:
+        width = 2 if ord(ch) > 0xFFFF else 1
+        if used + width > room:
+            break
+        kept.append(ch)
+        used += width
+    return "".join(kept) + marker, True
+
+
+def _width(values: Iterable[Any], header: str) -> float:
+    longest = len(header)
+    for value in values:
+        if value is None or (isinstance(value, float) and math.isnan(value)):
+            continue
+        text = value if isinstance(value, str) else str(value)
+        first_line = text.split("\n", 1)[0]
+        longest = max(longest, len(first_line))
+        if longest >= 60:
+            break
+    return float(min(max(longest + 2, 8), 62))
+
+
+def write_xlsx(
+    path: Path,
+    tables: Mapping[str, pd.DataFrame],
+    max_rows: int = EXCEL_MAX_ROWS,
+) -> tuple[Path, list[str]]:
+    """Write one workbook with one sheet per table; returns the path and notes.
+
+    Every sheet has a bold, frozen header row with an autofilter and column
+    widths fitted to the first rows. Text cells are neutralised (see module
+    docstring) and always written as strings, never as formulas or links;
+    numbers as numbers, NaN as an empty cell, infinities as the text ``inf`` /
+    ``−inf``. ``max_rows`` counts the header; tables longer than a sheet
+    continue on further sheets.
+    """
+    import xlsxwriter
+
+    if max_rows < 2:
+        raise ValueError("max_rows must leave room for a header and one row")
+    notes: list[str] = []
+    used: set[str] = set()
+    with atomic_path(path) as tmp:
+        workbook = xlsxwriter.Workbook(
+            str(tmp),
+            {
+                "strings_to_formulas": False,
+                "strings_to_urls": False,
+                "strings_to_numbers": False,
+                "constant_memory": True,
+                "use_zip64": True,
+            },
+        )
+        # A fixed creation date keeps the file's bytes the same for the same data.
+        workbook.set_properties({"created": _dt.datetime(2000, 1, 1)})
+        bold = workbook.add_format({"bold": True})
+        try:
+            for name, frame in tables.items():
+                if frame.shape[1] > EXCEL_MAX_COLUMNS:
+                    raise OutputError(
+                        f"table '{name}' has {frame.shape[1]:,} columns; a spreadsheet sheet holds "
+                        f"{EXCEL_MAX_COLUMNS:,}; drop 'xlsx' from export.formats or use the CSV/Parquet output"
+                    )
+                notes.extend(_write_sheets(workbook, bold, name, frame, used, max_rows))
+        finally:
+            workbook.close()
+    return path, notes
+
+
+def _write_sheets(workbook: Any, bold: Any, name: str, frame: pd.DataFrame, used: set[str], max_rows: int) -> list[str]:
+    notes: list[str] = []
+    safe = spreadsheet_frame(frame)
+    headers = [str(c) for c in safe.columns]
+    per_sheet = max_rows - 1
+    chunks = max(1, math.ceil(len(safe) / per_sheet))
+    if chunks > 1:
+        notes.append(
+            f"table '{name}' has {len(safe):,} rows; a sheet holds {per_sheet:,} below its header, "
+            f"so it continues on {chunks} sheets"
+        )
+    cut = 0
+    for chunk in range(chunks):
+        part = safe.iloc[chunk * per_sheet : (chunk + 1) * per_sheet]
+        sheet = workbook.add_worksheet(sheet_name(name if chunk == 0 else f"{name} ({chunk + 1})", used))
+        for col, header in enumerate(headers):
+            sheet.set_column(col, col, _width(part.iloc[:200, col].tolist(), header))
+        for col, header in enumerate(headers):
+            sheet.write_string(0, col, header, bold)
+        for r, row in enumerate(part.itertuples(index=False, name=None), start=1):
+            for col, value in enumerate(row):
+                cut += _write_cell(sheet, r, col, value)
+        sheet.freeze_panes(1, 0)
+        if headers:
+            sheet.autofilter(0, 0, max(len(part), 1), len(headers) - 1)
+    if cut:
+        notes.append(
+            f"table '{name}': {cut} cell(s) longer than {EXCEL_MAX_CELL_CHARS:,} characters were cut in the "
+            "XLSX file; the CSV, JSON and Parquet outputs keep the full text"
+        )
+    return notes
+
+
+def _write_cell(sheet: Any, row: int, col: int, value: Any) -> int:
+    if value is None or value is pd.NA or value is pd.NaT:
+        return 0
+    if isinstance(value, (bool, np.bool_)):
+        sheet.write_boolean(row, col, bool(value))
+        return 0
+    if isinstance(value, (int, float, np.integer, np.floating)):
+        number = float(value)
+        if math.isnan(number):
+            return 0
+        if math.isinf(number):
+            sheet.write_string(row, col, "inf" if number > 0 else "\u2212inf")
+            return 0
+        sheet.write_number(row, col, number)
+        return 0
+    if isinstance(value, (pd.Timestamp, _dt.datetime, _dt.date)):
+        sheet.write_string(row, col, value.isoformat())
+        return 0
+    text, was_cut = fit_cell(str(value))
+    sheet.write_string(row, col, text)
+    return int(was_cut)
+
+
+# --------------------------------------------------------------------------- Stata
+
+#: Stata's reserved names (Stata 18 manual, [U] 11.3 "Naming conventions") [recalled from memory].
+_STATA_RESERVED = frozenset(
+    "_all _b byte _coef _cons double float if in int long _n _N _pi _pred _rc _skip strL using with".split()
+)
+
+
+def stata_names(names: Iterable[str]) -> list[str]:
+    """Valid, unique Stata variable names for ``names``, in order.
+
+    Accents are dropped (NFKD), other characters become ``_``; a name must
+    start with a letter or ``_``, is at most 32 characters and is not one of
+    Stata's reserved words; clashes (compared case-insensitively) get ``_2``,
+    ``_3``...
+    """
+    out: list[str] = []
+    taken: set[str] = set()
+    for original in names:
+        ascii_name = unicodedata.normalize("NFKD", str(original)).encode("ascii", "ignore").decode("ascii")
+        name = re.sub(r"[^A-Za-z0-9_]+", "_", ascii_name).strip("_") or "v"
+        if not (name[0].isalpha() or name[0] == "_"):
+            name = "v_" + name
+        if name in _STATA_RESERVED or re.fullmatch(r"str\d+", name):
+            name = name + "_"
+        name = name[:32]
+        candidate, number = name, 2
+        while candidate.lower() in taken:
+            suffix = f"_{number}"
+            candidate = name[: 32 - len(suffix)] + suffix
+            number += 1
+        taken.add(candidate.lower())
+        out.append(candidate)
+    return out
+
+
+def write_stata(path: Path, table: pd.DataFrame, label: str = "", time_stamp: _dt.datetime | None = None) -> Path:
+    """Write ``table`` as Stata format 118 (UTF-8) with valid names and the originals as labels.
+
+    Strings longer than 2,045 bytes (Stata's ``str#`` limit) are stored as ``strL``.
+    Missing text is written as an empty string (Stata has no missing string).
+    ``label`` (at most 80 characters) and ``time_stamp`` go into the file header.
+    """
+    frame = table.copy()
+    originals = [str(c) for c in frame.columns]
+    names = stata_names(originals)
+    frame.columns = names
+    strl = []
+    for name in names:
+        column = frame[name]
+        if pd.api.types.is_bool_dtype(column.dtype):
+            frame[name] = column.astype(np.int8)
+        elif not (pd.api.types.is_numeric_dtype(column.dtype)):
+            text = column.astype(object).map(lambda v: "" if v is None or (isinstance(v, float) and np.isnan(v)) else str(v))
+            text = text.map(lambda s: s.replace("\x00", ""))
+            frame[name] = text.astype(object)
+            if len(text) and text.map(lambda s: len(s.encode("utf-8"))).max() > 2045:
+                strl.append(name)
+    labels = {name: original[:80] for name, original in zip(names, originals, strict=True) if name != original}
+    stamp = (time_stamp or _dt.datetime.now(_dt.UTC)).replace(tzinfo=None)
+    with atomic_path(path) as tmp:
+        frame.to_stata(
+            str(tmp),
+            write_index=False,
+            version=118,
+            convert_strl=strl,
+            variable_labels=labels,
+            data_label=label[:80],
+            time_stamp=stamp,
+        )
+    return path
