@@ -1,0 +1,303 @@
+"""The termloom terminal app: opens a study, records decisions, recomputes in a worker.
+
+Views never run stages themselves: they call :meth:`TermloomApp.decide`, which
+stores the decision at once and schedules a (debounced) recomputation from the
+earliest stage it touches, through :class:`~workbench.ui.session.Session`.
+"""
+
+from __future__ import annotations
+
+import threading
+import time
+import traceback
+from pathlib import Path
+from typing import ClassVar
+
+from textual import work
+from textual.app import App
+from textual.binding import Binding, BindingType
+from textual.message import Message
+from textual.timer import Timer
+
+from workbench.core.decisions import Decisions, Kind
+from workbench.core.errors import Cancelled, TermloomError
+from workbench.core.pipeline import RunOutputs
+from workbench.core.progress import Reporter
+from workbench.core.settings import Study
+from workbench.ui.commands import ActionCommands
+from workbench.ui.keymap import KeyAction, collect
+from workbench.ui.screens.help_screen import HelpScreen
+from workbench.ui.screens.prompt_screen import PromptScreen
+from workbench.ui.screens.workbench_screen import VIEW_CLASSES, WorkbenchScreen
+from workbench.ui.session import Session
+from workbench.ui.widgets.decisions_panel import describe
+from workbench.ui.widgets.frame_grid import FrameGrid
+
+
+class Progress(Message):
+    """Posted from the worker thread by the reporter's callback."""
+
+    def __init__(self, stage: str, done: int, total: int, text: str) -> None:
+        super().__init__()
+        self.stage, self.done, self.total, self.text = stage, done, total, text
+
+
+class TermloomApp(App[int]):
+    TITLE = "termloom"
+    CSS_PATH = "app.tcss"
+    COMMANDS = App.COMMANDS | {ActionCommands}
+
+    BINDINGS: ClassVar[list[BindingType]] = [
+        Binding("1", "show_view('sources')", "Sources", show=False, tooltip="Show the Sources view"),
+        Binding("2", "show_view('answers')", "Answers", show=False, tooltip="Show the Answers view"),
+        Binding("3", "show_view('terms')", "Terms", show=False, tooltip="Show the Terms view"),
+        Binding("4", "show_view('keywords')", "Keywords", show=False, tooltip="Show the Keywords view"),
+        Binding("5", "show_view('export')", "Export", show=False, tooltip="Show the Export view"),
+        Binding("d", "toggle_decisions", "Decisions", tooltip="Show / hide the decisions panel"),
+        Binding("ctrl+z", "undo", "Undo", tooltip="Undo the last decision"),
+        Binding("ctrl+y", "redo", "Redo", tooltip="Redo the last undone decision"),
+        Binding("escape", "cancel_work", "Cancel", tooltip="Cancel the running computation or export"),
+        Binding("question_mark", "help", "Keys", tooltip="List every key"),
+        Binding("ctrl+o", "open_study", "Open a study file", show=False),
+        Binding("ctrl+q", "quit", "Quit", tooltip="Quit (decisions are already saved)"),
+    ]
+
+    def __init__(self, study_path: Path | None = None, *, debounce: float = 0.6) -> None:
+        super().__init__()
+        self.study_path = study_path
+        self.debounce = debounce
+        self.session: Session | None = None
+        self._reporter: Reporter | None = None
+        self._timer: Timer | None = None
+        self._last_progress = 0.0
+
+    # ------------------------------------------------------------------ start
+
+    def on_mount(self) -> None:
+        self._workbench = WorkbenchScreen()
+        self.push_screen(self._workbench)
+        if self.study_path is not None:
+            self.open_study(self.study_path)
+
+    @property
+    def workbench(self) -> WorkbenchScreen:
+        return self._workbench
+
+    def open_study(self, path: Path) -> None:
+        try:
+            session = Session.open(path)
+        except TermloomError as exc:
+            self.notify(str(exc), title="Cannot open study", severity="error", timeout=12)
+            return
+        if self.session is not None:
+            self.session.close()
+        self.session = session
+        self.sub_title = session.study.study.name
+        self.workbench.study_opened(session)
+        self.refresh_decisions()
+        self.start_compute()
+
+    def reload_study(self) -> None:
+        """Read the study file again (it was just edited) and recompute from ingest."""
+        if self.session is None:
+            return
+        try:
+            self.session.reload_study()
+        except TermloomError as exc:
+            self.notify(str(exc), title="Study not re-read", severity="error", timeout=12)
+            return
+        self.workbench.study_opened(self.session)
+        self.schedule_compute()
+
+    def on_unmount(self) -> None:
+        if self._reporter is not None:
+            self._reporter.cancel.set()
+        if self.session is not None:
+            self.session.close()
+
+    # ------------------------------------------------------------------ decisions
+
+    def decide(self, kind: Kind, target: str, value: str = "1", language: str = "") -> bool:
+        """Store one decision now and schedule a recomputation; ``False`` if it could not be stored."""
+        if self.session is None:
+            self.notify("open a study first (press ^o)", severity="warning")
+            return False
+        try:
+            self.session.record(kind, target, value, language)
+        except TermloomError as exc:
+            self.notify(str(exc), title="Decision not saved", severity="error", timeout=10)
+            return False
+        self.refresh_decisions()
+        self.schedule_compute()
+        return True
+
+    def action_undo(self) -> None:
+        self._undo_redo(undo=True)
+
+    def action_redo(self) -> None:
+        self._undo_redo(undo=False)
+
+    def _undo_redo(self, undo: bool) -> None:
+        if self.session is None:
+            return
+        decision = self.session.undo() if undo else self.session.redo()
+        if decision is None:
+            self.notify("nothing to undo" if undo else "nothing to redo", timeout=3)
+            return
+        self.notify(f"{'undone' if undo else 'redone'}: {describe(decision)}", timeout=4)
+        self.refresh_decisions()
+        self.workbench.decisions_changed()
+        self.schedule_compute()
+
+    def refresh_decisions(self) -> None:
+        if self.session is not None:
+            self.workbench.show_history(self.session.history())
+
+    def active_decisions(self) -> Decisions:
+        return self.session.active() if self.session is not None else Decisions()
+
+    # ------------------------------------------------------------------ computing
+
+    @property
+    def computing(self) -> bool:
+        return self._reporter is not None
+
+    def schedule_compute(self) -> None:
+        """Recompute after a quiet spell, so a burst of keys costs one run."""
+        if self._reporter is not None:
+            # The running computation is already out of date: stop it; it restarts when it ends.
+            self._reporter.cancel.set()
+        if self._timer is not None:
+            self._timer.stop()
+            self._timer = None
+        if self.debounce <= 0:
+            self.start_compute()
+        else:
+            self._timer = self.set_timer(self.debounce, self._debounced)
+
+    def _debounced(self) -> None:
+        self._timer = None
+        self.start_compute()
+
+    def start_compute(self) -> None:
+        session = self.session
+        if session is None or self._reporter is not None:
+            return
+        stage = session.take_stale()
+        if stage is None:
+            return
+        self._reporter = Reporter(callback=self._progress_from_thread, cancel=threading.Event())
+        self.workbench.status.start(stage)
+        self.refresh_bindings()
+        self._compute(session, stage, session.active(), session.study, self._reporter)
+
+    @work(thread=True, group="pipeline", exit_on_error=False)
+    def _compute(self, session: Session, stage: str, decisions: Decisions, study: Study, reporter: Reporter) -> None:
+        try:
+            outputs = session.compute(stage, decisions, reporter, study)
+        except Cancelled:
+            self.call_from_thread(self._compute_ended, session, stage, None, None)
+        except TermloomError as exc:
+            self.call_from_thread(self._compute_ended, session, stage, None, str(exc))
+        except Exception as exc:  # a bug: say so in one line, keep the traceback in the log
+            self.log.error(traceback.format_exc())
+            message = f"internal error in {stage} ({type(exc).__name__}: {exc}); please report it with the study file"
+            self.call_from_thread(self._compute_ended, session, stage, None, message)
+        else:
+            self.call_from_thread(self._compute_ended, session, stage, outputs, None)
+
+    def _progress_from_thread(self, stage: str, done: int, total: int, message: str) -> None:
+        now = time.perf_counter()
+        if now - self._last_progress >= 0.1 or (total and done >= total):
+            self._last_progress = now
+            self.post_message(Progress(stage, done, total, message))
+
+    def on_progress(self, message: Progress) -> None:
+        self.workbench.status.progress(message.stage, message.done, message.total, message.text)
+
+    def _compute_ended(self, session: Session, stage: str, outputs: RunOutputs | None, error: str | None) -> None:
+        self._reporter = None
+        self.refresh_bindings()
+        if session is not self.session:
+            return
+        if outputs is None:
+            session.mark_stale(stage)
+            if error is not None:
+                # Do not retry a failing run in a loop; the next decision or reload retries.
+                session.stale_from = None if session.outputs is None else session.stale_from
+                self.notify(error, title="Stopped", severity="error", timeout=15)
+                self.workbench.status.finish(f"stopped: {error}"[:200])
+                return
+            if session.stale_from is not None and (self._timer is None):
+                self.start_compute()
+            else:
+                self.workbench.status.finish("cancelled; earlier results are still shown")
+            return
+        session.outputs = outputs
+        self.workbench.outputs_changed(session)
+        if session.stale_from is not None and self._timer is None:
+            self.start_compute()
+
+    def action_cancel_work(self) -> None:
+        if self._reporter is not None:
+            self._reporter.cancel.set()
+            if self._timer is not None:
+                self._timer.stop()
+                self._timer = None
+            self.notify("cancelling…", timeout=3)
+
+    def check_action(self, action: str, parameters: tuple[object, ...]) -> bool | None:
+        if action == "cancel_work":
+            return self._reporter is not None
+        return True
+
+    async def wait_until_idle(self) -> None:
+        """Wait until no computation is running or scheduled (tests and benchmarks).
+
+        A pending debounce timer is fired at once rather than waited for.
+        """
+        while True:
+            if self._timer is not None:
+                self._timer.stop()
+                self._timer = None
+                self.start_compute()
+            # The worker hands its result over with call_from_thread, which returns
+            # only after the main loop ran it, so a finished worker means handled outputs.
+            await self.workers.wait_for_complete()
+            if self._reporter is None and self._timer is None:
+                return
+
+    # ------------------------------------------------------------------ actions
+
+    def action_show_view(self, view: str) -> None:
+        self.workbench.show_view(view)
+
+    def action_toggle_decisions(self) -> None:
+        self.workbench.toggle_decisions()
+
+    def action_help(self) -> None:
+        self.push_screen(HelpScreen(self.key_actions()))
+
+    def action_open_study(self) -> None:
+        def chosen(path: str | None) -> None:
+            if path:
+                self.open_study(Path(path).expanduser())
+
+        self.push_screen(PromptScreen("Open which study file (*.study.toml)?", placeholder="path/to/name.study.toml"), chosen)
+
+    def key_actions(self, with_navigation: bool = True) -> list[KeyAction]:
+        """Every key, for the help screen; the palette leaves out table navigation."""
+        scopes: list[tuple[str, str | None, type]] = [("Everywhere", None, type(self))]
+        scopes += [(cls.TITLE, view, cls) for view, cls in VIEW_CLASSES.items()]
+        actions = collect(scopes)
+        if with_navigation:
+            actions += collect([("Tables", None, FrameGrid)])
+        return actions
+
+    def run_key_action(self, action: KeyAction) -> None:
+        """Run an action chosen in the command palette, in the view it belongs to."""
+        if action.view is None:
+            self.call_later(self.run_action, action.action)
+            return
+        view = self.workbench.show_view(action.view)
+        self.call_after_refresh(view.run_action, action.action)

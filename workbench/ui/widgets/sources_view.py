@@ -1,0 +1,193 @@
+"""Sources: what ingest decided about each file, a preview of the rows, and the column roles.
+
+Roles are edited in memory with one key each and written into the study file
+with ``ctrl+s`` (only its ``[columns]`` table changes); the study is then read
+again and recomputed from ingest.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import ClassVar
+
+import pandas as pd
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.binding import Binding, BindingType
+from textual.containers import Horizontal, Vertical
+from textual.widget import Widget
+from textual.widgets import Static
+
+from workbench.core import corpus as C
+from workbench.core.errors import TermloomError
+from workbench.core.settings import Columns
+from workbench.ui.session import Session
+from workbench.ui.study_file import columns_table, write_columns
+from workbench.ui.widgets.frame_grid import FrameGrid, GridColumn
+from workbench.ui.widgets.view_base import ViewBase
+
+ROLE_STYLE = {"id": "bold cyan", "text": "bold green", "group": "magenta", "weight": "yellow", "hint": "blue"}
+#: Columns ingest adds; they are not roles the user can give.
+_TECHNICAL = {C.RESPONDENT_ID, C.SOURCE, C.ROW}
+
+
+def roles_of(columns: Columns) -> dict[str, str]:
+    """Column name -> role, read from the study's ``[columns]`` table."""
+    roles: dict[str, str] = {}
+    for name in columns.groups:
+        roles[name] = "group"
+    for name in columns.text:
+        roles[name] = "text"
+    if columns.weight:
+        roles[columns.weight] = "weight"
+    if columns.language_hint:
+        roles[columns.language_hint] = "hint"
+    if columns.id:
+        roles[columns.id] = "id"
+    return roles
+
+
+def _role_cell(value: object) -> Text:
+    role = str(value or "")
+    return Text(role or "·", style=ROLE_STYLE.get(role, "dim"))
+
+
+class SourcesView(ViewBase):
+    TITLE = "Sources"
+
+    BINDINGS: ClassVar[list[BindingType]] = [
+        Binding("i", "role('id')", "Id", tooltip="This column is the respondent id"),
+        Binding("t", "role('text')", "Text", tooltip="This column holds answers (toggle)"),
+        Binding("g", "role('group')", "Group", tooltip="This column is a group to compare (toggle)"),
+        Binding("w", "role('weight')", "Weight", show=False, tooltip="This column is the respondent weight"),
+        Binding("h", "role('hint')", "Hint", show=False, tooltip="This column hints at the language"),
+        Binding("delete,backspace", "role('')", "No role", show=False, tooltip="This column has no role"),
+        Binding("ctrl+s", "save_roles", "Save roles", tooltip="Write the column roles into the study file and re-read the data"),
+        Binding("p", "focus_preview", "Preview", show=False, tooltip="Go to the data preview"),
+    ]
+
+    def __init__(self, *, id: str | None = None) -> None:
+        super().__init__(id=id)
+        self.roles: dict[str, str] = {}
+        self.order: list[str] = []
+        self.saved_roles: dict[str, str] = {}
+
+    def compose(self) -> ComposeResult:
+        yield Static("no study open", id="sources-report")
+        with Horizontal(id="sources-body"):
+            with Vertical(id="roles-box"):
+                yield Static("Column roles  (i t g w h · ^s save)", id="roles-title", classes="box-title")
+                yield FrameGrid(
+                    [GridColumn("column", "column"), GridColumn("role", "role", 7, format=_role_cell)],
+                    key_column="column",
+                    empty_text="columns appear after import",
+                    id="roles-grid",
+                )
+            with Vertical(id="preview-box"):
+                yield Static("Preview", id="preview-title", classes="box-title")
+                yield FrameGrid([], key_column=C.RESPONDENT_ID, empty_text="no rows yet", id="preview-grid")
+
+    def main_widget(self) -> Widget | None:
+        return self.query_one("#roles-grid", FrameGrid)
+
+    def study_opened(self, session: Session) -> None:
+        self.saved_roles = roles_of(session.study.columns)
+        self.roles = dict(self.saved_roles)
+        self.order = list(self.roles)
+        self._show_roles()
+
+    def outputs_changed(self, session: Session) -> None:
+        outputs = session.outputs
+        if outputs is None or outputs.corpus is None:
+            return
+        corpus = outputs.corpus
+        lines = Text()
+        base = session.study.base_dir
+        for report in corpus.reports:
+            try:
+                shown = str(Path(report.path).resolve().relative_to(base))
+            except ValueError:
+                shown = report.path
+            lines.append(f"{report.source}", style="bold")
+            details = [f"{report.format}", f"{report.rows:,} rows", f"{len(report.columns)} columns"]
+            if report.encoding:
+                details.append(f"encoding {report.encoding}")
+            if report.delimiter:
+                details.append(f"delimiter {report.delimiter!r}")
+            if report.sheet is not None:
+                details.append(f"sheet {report.sheet}")
+            lines.append(f"  {shown} · " + " · ".join(details) + "\n")
+            for note in report.notes:
+                lines.append(f"    {note}\n", style="dim")
+        counts = outputs.ledger.counts().get("row", {})
+        lines.append(
+            f"{len(corpus.respondents):,} respondents kept · {len(corpus.answers):,} answers"
+            + (f" · {counts.get('dropped', 0):,} rows dropped (see the ledger in the export)" if counts.get("dropped") else "")
+        )
+        self.query_one("#sources-report", Static).update(lines)
+        seen: list[str] = []
+        for report in corpus.reports:
+            seen += [c for c in report.columns if c not in seen]
+        seen += [c for c in corpus.respondents.columns if c not in seen and c not in _TECHNICAL]
+        self.order = seen + [c for c in self.roles if c not in seen]
+        self._show_roles()
+        preview = self.query_one("#preview-grid", FrameGrid)
+        shown_columns = [c for c in corpus.respondents.columns if c not in (C.SOURCE,)][:12]
+        preview.columns = [
+            GridColumn(c, c, None if self.roles.get(c) == "text" else min(18, max(4, len(str(c)))))
+            for c in shown_columns
+        ]
+        preview.set_frame(corpus.respondents)
+
+    def _show_roles(self) -> None:
+        frame = pd.DataFrame({"column": self.order, "role": [self.roles.get(c, "") for c in self.order]})
+        self.query_one("#roles-grid", FrameGrid).set_frame(frame)
+        changed = self.roles != self.saved_roles
+        title = "Column roles  (i t g w h · ^s save)" + ("  • unsaved" if changed else "")
+        self.query_one("#roles-title", Static).update(title)
+
+    def action_role(self, role: str) -> None:
+        column = self.query_one("#roles-grid", FrameGrid).current_key()
+        if column is None:
+            return
+        current = self.roles.get(column, "")
+        if role in ("id", "weight", "hint"):
+            # One column at most holds these roles.
+            for name, value in list(self.roles.items()):
+                if value == role:
+                    del self.roles[name]
+        if role == "" or current == role:
+            self.roles.pop(column, None)
+        else:
+            self.roles[column] = role
+        self._show_roles()
+
+    def action_focus_preview(self) -> None:
+        self.query_one("#preview-grid", FrameGrid).focus()
+
+    def action_save_roles(self) -> None:
+        session = self.session
+        if session is None or session.study.study_path is None:
+            self.notify("open a study first", severity="warning")
+            return
+        by_role: dict[str, list[str]] = {}
+        for column in self.order:
+            if column in self.roles:
+                by_role.setdefault(self.roles[column], []).append(column)
+        if not by_role.get("text"):
+            self.notify("mark at least one answer text column with t before saving", severity="warning")
+            return
+        table = columns_table(
+            (by_role.get("id") or [None])[0],
+            by_role.get("text", []),
+            by_role.get("group", []),
+            (by_role.get("weight") or [None])[0],
+            (by_role.get("hint") or [None])[0],
+        )
+        try:
+            write_columns(session.study.study_path, table)
+        except TermloomError as exc:
+            self.notify(str(exc), title="Roles not saved", severity="error", timeout=12)
+            return
+        self.notify(f"column roles saved to {session.study.study_path.name}; re-reading the data", timeout=5)
+        self.termloom.reload_study()
