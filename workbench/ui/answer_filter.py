@@ -114,7 +114,7 @@ class AnswerIndex:
         if C.LANGUAGE not in frame:
             return np.zeros(self.size, bool)
         language = frame[C.LANGUAGE].astype(str)
-        mask = (language == "und").to_numpy()
+        mask = (language == "und").to_numpy().copy()
         if C.MIXED in frame:
             mask |= frame[C.MIXED].fillna(False).astype(bool).to_numpy()
         if C.CONFIDENCE in frame:
@@ -125,7 +125,7 @@ class AnswerIndex:
             mask &= (source != "decision").to_numpy()
         if C.HINT in frame:
             hint = frame[C.HINT].fillna("").astype(str).str.strip().str.lower()
-            disagree = ((hint != "") & (hint != language)).to_numpy()
+            disagree = ((hint != "") & (hint != language)).to_numpy().copy()
             if C.LANGUAGE_SOURCE in frame:
                 disagree &= (frame[C.LANGUAGE_SOURCE].astype(str) != "decision").to_numpy()
             mask |= disagree

@@ -7,9 +7,11 @@ earliest stage it touches, through :class:`~workbench.ui.session.Session`.
 
 from __future__ import annotations
 
+import dataclasses
 import threading
 import time
 import traceback
+from collections.abc import Callable
 from pathlib import Path
 from typing import ClassVar
 
@@ -236,6 +238,54 @@ class TermloomApp(App[int]):
         session.outputs = outputs
         self.workbench.outputs_changed(session)
         if session.stale_from is not None and self._timer is None:
+            self.start_compute()
+
+    # ------------------------------------------------------------------ export
+
+    def export(self, folder: Path, formats: list[str], done: Callable[[Path, list[Path] | None, str | None], None]) -> bool:
+        """Write the results on screen to ``folder`` in a worker; ``done`` gets the files or an error."""
+        session = self.session
+        if session is None or session.outputs is None or session.outputs.compared is None:
+            self.notify("nothing to export yet: wait until every stage has run", severity="warning")
+            return False
+        if self._reporter is not None or session.stale_from is not None or self._timer is not None:
+            self.notify("results are being recomputed; export when the status line is quiet", severity="warning")
+            return False
+        study = session.study.model_copy(
+            update={"export": session.study.export.model_copy(update={"formats": list(formats)})}
+        )
+        outputs = dataclasses.replace(session.outputs, study=study)
+        self._reporter = Reporter(callback=self._progress_from_thread, cancel=threading.Event())
+        self.workbench.status.start("export", "writing")
+        self.refresh_bindings()
+        self._export(outputs, folder, self._reporter, done)
+        return True
+
+    @work(thread=True, group="export", exit_on_error=False)
+    def _export(self, outputs: RunOutputs, folder: Path, reporter: Reporter, done: Callable[..., None]) -> None:
+        from workbench.core.export import write_run
+
+        written: list[Path] | None = None
+        error: str | None = None
+        try:
+            written = write_run(folder, outputs, reporter)
+        except Cancelled:
+            error = None
+        except TermloomError as exc:
+            error = str(exc)
+        except Exception as exc:  # a bug: one line on screen, the traceback in the log
+            self.log.error(traceback.format_exc())
+            error = f"internal error while writing ({type(exc).__name__}: {exc}); please report it"
+        self.call_from_thread(self._export_ended, folder, written, error, done)
+
+    def _export_ended(self, folder: Path, written: list[Path] | None, error: str | None, done: Callable[..., None]) -> None:
+        self._reporter = None
+        self.refresh_bindings()
+        if error:
+            self.notify(error, title="Export stopped", severity="error", timeout=15)
+        self.workbench.status.finish()
+        done(folder, written, error)
+        if self.session is not None and self.session.stale_from is not None:
             self.start_compute()
 
     def action_cancel_work(self) -> None:

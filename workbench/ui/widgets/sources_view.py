@@ -12,13 +12,13 @@ from typing import ClassVar
 
 import pandas as pd
 from rich.text import Text
+from textual import work
 from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
 from textual.containers import Horizontal, Vertical
 from textual.widget import Widget
 from textual.widgets import Static
 
-from workbench.core import corpus as C
 from workbench.core.errors import TermloomError
 from workbench.core.settings import Columns
 from workbench.ui.session import Session
@@ -27,8 +27,8 @@ from workbench.ui.widgets.frame_grid import FrameGrid, GridColumn
 from workbench.ui.widgets.view_base import ViewBase
 
 ROLE_STYLE = {"id": "bold cyan", "text": "bold green", "group": "magenta", "weight": "yellow", "hint": "blue"}
-#: Columns ingest adds; they are not roles the user can give.
-_TECHNICAL = {C.RESPONDENT_ID, C.SOURCE, C.ROW}
+#: Rows of each source shown in the preview.
+PREVIEW_ROWS = 200
 
 
 def roles_of(columns: Columns) -> dict[str, str]:
@@ -63,6 +63,7 @@ class SourcesView(ViewBase):
         Binding("h", "role('hint')", "Hint", show=False, tooltip="This column hints at the language"),
         Binding("delete,backspace", "role('')", "No role", show=False, tooltip="This column has no role"),
         Binding("ctrl+s", "save_roles", "Save roles", tooltip="Write the column roles into the study file and re-read the data"),
+        Binding("n", "next_source", "Next source", show=False, tooltip="Preview the next source file"),
         Binding("p", "focus_preview", "Preview", show=False, tooltip="Go to the data preview"),
     ]
 
@@ -71,6 +72,8 @@ class SourcesView(ViewBase):
         self.roles: dict[str, str] = {}
         self.order: list[str] = []
         self.saved_roles: dict[str, str] = {}
+        self.peeks: list[tuple[pd.DataFrame | None, str]] = []
+        self.source_index = 0
 
     def compose(self) -> ComposeResult:
         yield Static("no study open", id="sources-report")
@@ -85,7 +88,7 @@ class SourcesView(ViewBase):
                 )
             with Vertical(id="preview-box"):
                 yield Static("Preview", id="preview-title", classes="box-title")
-                yield FrameGrid([], key_column=C.RESPONDENT_ID, empty_text="no rows yet", id="preview-grid")
+                yield FrameGrid([], key_column="#", empty_text="no rows yet", id="preview-grid")
 
     def main_widget(self) -> Widget | None:
         return self.query_one("#roles-grid", FrameGrid)
@@ -95,6 +98,63 @@ class SourcesView(ViewBase):
         self.roles = dict(self.saved_roles)
         self.order = list(self.roles)
         self._show_roles()
+        self._peek(session)
+
+    @work(thread=True, group="peek", exclusive=True, exit_on_error=False)
+    def _peek(self, session: Session) -> None:
+        """Read the first rows of every source (with every column, text included) for the preview."""
+        from workbench.core.ingest import peek_source
+
+        peeks: list[tuple[pd.DataFrame | None, str]] = []
+        for source in session.study.sources:
+            try:
+                frame, report = peek_source(source.path, PREVIEW_ROWS)
+            except TermloomError as exc:
+                peeks.append((None, str(exc)))
+            except OSError as exc:
+                peeks.append((None, f"{source.path} cannot be read ({exc.strerror}); fix sources.path in the study"))
+            else:
+                peeks.append((frame, ", ".join(report.columns)))
+        self.app.call_from_thread(self._peeked, session, peeks)
+
+    def _peeked(self, session: Session, peeks: list[tuple[pd.DataFrame | None, str]]) -> None:
+        self.peeks = peeks
+        seen = [c for c in self.order]
+        for frame, _ in peeks:
+            if frame is not None:
+                seen += [str(c) for c in frame.columns if str(c) not in seen]
+        self.order = seen
+        self._show_roles()
+        self._show_preview()
+        if session.outputs is None:
+            problems = [text for frame, text in peeks if frame is None]
+            if problems:
+                self.query_one("#sources-report", Static).update(Text("\n".join(problems), style="red"))
+
+    def _show_preview(self) -> None:
+        preview = self.query_one("#preview-grid", FrameGrid)
+        frames = [frame for frame, _ in self.peeks if frame is not None]
+        if not frames:
+            return
+        frame = frames[self.source_index % len(frames)].copy()
+        frame.insert(0, "#", range(1, len(frame) + 1))
+        preview.key_column = "#"
+        columns = [str(c) for c in frame.columns][:14]
+        preview.columns = [
+            GridColumn(c, c, None if self.roles.get(c) == "text" else min(16, max(3, len(c)))) for c in columns
+        ]
+        if not any(self.roles.get(c) == "text" for c in columns) and len(preview.columns) > 1:
+            last = preview.columns[-1]
+            preview.columns[-1] = GridColumn(last.key, last.label)
+        preview.set_frame(frame)
+        label = f"Preview: first {len(frame)} rows"
+        if len(frames) > 1:
+            label += f" of source {self.source_index % len(frames) + 1}/{len(frames)} (n: next source)"
+        self.query_one("#preview-title", Static).update(label)
+
+    def action_next_source(self) -> None:
+        self.source_index += 1
+        self._show_preview()
 
     def outputs_changed(self, session: Session) -> None:
         outputs = session.outputs
@@ -121,23 +181,15 @@ class SourcesView(ViewBase):
                 lines.append(f"    {note}\n", style="dim")
         counts = outputs.ledger.counts().get("row", {})
         lines.append(
-            f"{len(corpus.respondents):,} respondents kept · {len(corpus.answers):,} answers"
+            f"{len(corpus.respondents):,} respondents · {len(corpus.answers):,} answers"
             + (f" · {counts.get('dropped', 0):,} rows dropped (see the ledger in the export)" if counts.get("dropped") else "")
         )
         self.query_one("#sources-report", Static).update(lines)
-        seen: list[str] = []
+        seen = list(self.order)
         for report in corpus.reports:
             seen += [c for c in report.columns if c not in seen]
-        seen += [c for c in corpus.respondents.columns if c not in seen and c not in _TECHNICAL]
-        self.order = seen + [c for c in self.roles if c not in seen]
+        self.order = seen
         self._show_roles()
-        preview = self.query_one("#preview-grid", FrameGrid)
-        shown_columns = [c for c in corpus.respondents.columns if c not in (C.SOURCE,)][:12]
-        preview.columns = [
-            GridColumn(c, c, None if self.roles.get(c) == "text" else min(18, max(4, len(str(c)))))
-            for c in shown_columns
-        ]
-        preview.set_frame(corpus.respondents)
 
     def _show_roles(self) -> None:
         frame = pd.DataFrame({"column": self.order, "role": [self.roles.get(c, "") for c in self.order]})
@@ -161,6 +213,7 @@ class SourcesView(ViewBase):
         else:
             self.roles[column] = role
         self._show_roles()
+        self._show_preview()
 
     def action_focus_preview(self) -> None:
         self.query_one("#preview-grid", FrameGrid).focus()
