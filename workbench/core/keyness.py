@@ -220,6 +220,18 @@ class RespondentCounts:
         return self.mentions if counting == "respondents" else self.tokens
 
 
+def respondent_collapse(respondent_of_row: np.ndarray) -> tuple[sp.csr_matrix, np.ndarray, np.ndarray]:
+    """The sparse ``(respondents, rows)`` 0/1 matrix that sums each respondent's rows.
+
+    Returns the matrix, the respondent ids (in order of first appearance) and
+    the respondent position of every row.
+    """
+    codes, uniques = pd.factorize(np.asarray(respondent_of_row, dtype=object), sort=False)
+    n_rows = len(codes)
+    collapse = sp.csr_matrix((np.ones(n_rows), (codes, np.arange(n_rows))), shape=(len(uniques), n_rows))
+    return collapse, np.asarray(uniques, dtype=object), codes
+
+
 def by_respondent(counts: Counts, respondent_of_row: np.ndarray) -> RespondentCounts:
     """Sum the answer rows of each respondent (one sparse product) and mark mentions.
 
@@ -227,16 +239,11 @@ def by_respondent(counts: Counts, respondent_of_row: np.ndarray) -> RespondentCo
     Respondents keep the order of their first answer; a respondent's weight is
     the weight of its first answer row (weights are respondent-level).
     """
-    respondent_of_row = np.asarray(respondent_of_row)
     if len(respondent_of_row) != counts.matrix.shape[0]:
         raise ValueError(
             f"{len(respondent_of_row)} respondent ids for {counts.matrix.shape[0]} rows of '{counts.language}'"
         )
-    codes, uniques = pd.factorize(respondent_of_row, sort=False)
-    n_rows = len(codes)
-    collapse = sp.csr_matrix(
-        (np.ones(n_rows), (codes, np.arange(n_rows))), shape=(len(uniques), n_rows)
-    )
+    collapse, uniques, codes = respondent_collapse(respondent_of_row)
     tokens = sp.csr_matrix(collapse @ sp.csr_matrix(counts.matrix, dtype=np.float64))
     tokens.eliminate_zeros()
     tokens.sort_indices()
@@ -248,7 +255,7 @@ def by_respondent(counts: Counts, respondent_of_row: np.ndarray) -> RespondentCo
     return RespondentCounts(
         tokens=tokens,
         mentions=mentions,
-        respondent_ids=np.asarray(uniques, dtype=object),
+        respondent_ids=uniques,
         weights=weights,
         terms=np.asarray(counts.terms),
         language=counts.language,

@@ -1,0 +1,174 @@
+"""Bootstrap stability of top-k keyword lists: which keywords would survive another sample.
+
+A keyword list of a small group is noisy: a term can reach the top 20 because
+three respondents happened to use it. To show this, respondents are resampled
+with replacement (the nonparametric bootstrap, Efron & Tibshirani 1993,
+*An Introduction to the Bootstrap*), the list is recomputed, and for every term
+of the original top k we report
+
+* ``stay_share`` — the share of resamples in which the term is still in the top k;
+* ``rank_low`` / ``rank_high`` — the 2.5th and 97.5th percentiles of its rank
+  over the resamples (a 95 % percentile interval of the rank).
+
+Ranks are competition ranks: 1 + the number of terms with a strictly larger
+score, so tied terms share a rank and "in the top k" means rank ≤ k.
+
+Resampling is stratified by group when a grouping is given (each group keeps
+its size, as the design fixed it), and draws respondents, not answers, so the
+answers of one respondent stay together. One resample costs one sparse
+product: the multiplicities ``m`` (how often each respondent was drawn) times
+the respondent weights give a sparse ``(groups, respondents)`` matrix whose
+product with the respondent × term matrix is every group's resampled column
+sums.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+
+import numpy as np
+import pandas as pd
+import scipy.sparse as sp
+
+from workbench.core.progress import Reporter
+
+#: ``score(sums, totals) -> scores``: ``sums`` is ``(groups, terms)``, ``totals`` ``(groups,)``.
+ScoreFunction = Callable[[np.ndarray, np.ndarray], np.ndarray]
+
+
+def share_score(sums: np.ndarray, totals: np.ndarray) -> np.ndarray:
+    """Weighted share: column sum ÷ the group's Σ w (share of respondents mentioning, or mean weight)."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(totals[:, None] > 0, sums / totals[:, None], 0.0)
+
+
+def top_k_indices(scores: np.ndarray, terms: np.ndarray, k: int) -> list[np.ndarray]:
+    """Per row, the indices of the ``k`` largest positive scores; ties broken by term, ascending."""
+    out = []
+    term_text = np.asarray(terms).astype(str)
+    for row in np.atleast_2d(scores):
+        positive = np.flatnonzero(row > 0)
+        order = positive[np.lexsort((term_text[positive], -row[positive]))]
+        out.append(order[:k])
+    return out
+
+
+def competition_ranks(scores: np.ndarray, picks: list[np.ndarray]) -> list[np.ndarray]:
+    """Rank (1 + number of strictly larger scores in the row) of each picked term."""
+    ranks = []
+    for row, chosen in zip(np.atleast_2d(scores), picks, strict=True):
+        ordered = np.sort(row)
+        ranks.append(len(row) - np.searchsorted(ordered, row[chosen], side="right") + 1)
+    return ranks
+
+
+def bootstrap_top_k(
+    matrix: sp.csr_matrix,
+    weights: np.ndarray,
+    terms: np.ndarray,
+    score: ScoreFunction,
+    *,
+    k: int,
+    resamples: int,
+    seed: int | list[int],
+    labels: np.ndarray | None = None,
+    values: list[object] | None = None,
+    denominators: np.ndarray | None = None,
+    reporter: Reporter | None = None,
+) -> pd.DataFrame:
+    """Top-k list of every group with its bootstrap stability.
+
+    Parameters
+    ----------
+    matrix
+        Respondents × terms (counts, mentions or weights), CSR.
+    weights
+        Respondent weights (ones when unweighted).
+    score
+        Turns column sums ``S_gt = Σ_i m_i w_i x_it`` (over the group's
+        respondents, ``m_i`` the multiplicity in the resample, 1 for the
+        original sample) and totals ``T_g = Σ_i m_i w_i d_i`` into term scores.
+    k, resamples, seed
+        List length, number of bootstrap resamples (0 skips the bootstrap:
+        ``stay_share`` and the rank interval are then empty), and the seed of
+        ``numpy.random.default_rng`` (an int or a list of ints, e.g. the
+        study seed and a list number); the same seed gives the same figures.
+    labels, values
+        Group of each respondent and the groups to list (respondents with a
+        label not in ``values`` are left out). ``None`` treats all respondents
+        as one group named ``"all"``.
+    denominators
+        ``d_i`` per respondent (default 1): e.g. the number of answers of each
+        respondent, so that ``S / T`` is a mean over answers.
+
+    Returns
+    -------
+    pandas.DataFrame
+        One row per (group, listed term): ``group``, ``rank``, ``term``,
+        ``score``, ``stay_share``, ``rank_low``, ``rank_high``, ``resamples``.
+    """
+    n = matrix.shape[0]
+    if labels is None:
+        labels = np.zeros(n, dtype=np.int64)
+        values = [0]
+        names: list[object] = ["all"]
+    else:
+        assert values is not None
+        names = list(values)
+    position = {v: g for g, v in enumerate(values)}
+    group_of = np.fromiter((position.get(v, -1) for v in np.asarray(labels, dtype=object)), dtype=np.int64, count=n)
+    members = np.flatnonzero(group_of >= 0)
+    # Respondents sorted by group, so each group is one contiguous block to draw from.
+    members = members[np.argsort(group_of[members], kind="stable")]
+    g_sorted = group_of[members]
+    sizes = np.bincount(g_sorted, minlength=len(names))
+    starts = np.concatenate([[0], np.cumsum(sizes)[:-1]])
+    w_sorted = np.asarray(weights, dtype=np.float64)[members]
+    d_sorted = np.ones(len(members)) if denominators is None else np.asarray(denominators, dtype=np.float64)[members]
+    mx = sp.csr_matrix(matrix, dtype=np.float64)[members]
+    selector = sp.csr_matrix((w_sorted, (g_sorted, np.arange(len(members)))), shape=(len(names), len(members)))
+
+    def evaluate(multiplicity: np.ndarray) -> np.ndarray:
+        selector.data = w_sorted[selector.indices] * multiplicity[selector.indices]
+        sums = np.asarray((selector @ mx).toarray())
+        totals = np.asarray(selector @ d_sorted).ravel()
+        return score(sums, totals)
+
+    # The selector's column order is the sorted member order, so data aligns with `indices`.
+    original = evaluate(np.ones(len(members)))
+    picks = top_k_indices(original, terms, k)
+    ranks = [np.empty((resamples, len(p)), dtype=np.int64) for p in picks]
+    rng = np.random.default_rng(seed)
+    for r in range(resamples):
+        if reporter is not None and r % 20 == 0:
+            reporter.update("compare", r, resamples, "bootstrap stability")
+        # Uniform draw within each respondent's own group: stratified bootstrap.
+        draws = starts[g_sorted] + np.floor(rng.random(len(members)) * sizes[g_sorted]).astype(np.int64)
+        multiplicity = np.bincount(draws, minlength=len(members)).astype(np.float64)
+        for g, rank in enumerate(competition_ranks(evaluate(multiplicity), picks)):
+            ranks[g][r] = rank
+    frames = []
+    for g, chosen in enumerate(picks):
+        if len(chosen) == 0:
+            continue
+        frame = pd.DataFrame(
+            {
+                "group": names[g],
+                "rank": competition_ranks(original[g : g + 1], [chosen])[0],
+                "term": np.asarray(terms)[chosen],
+                "score": original[g, chosen],
+            }
+        )
+        if resamples > 0:
+            frame["stay_share"] = (ranks[g] <= k).mean(axis=0)
+            low, high = np.percentile(ranks[g], [2.5, 97.5], axis=0)
+            frame["rank_low"], frame["rank_high"] = low, high
+        else:
+            frame["stay_share"] = np.nan
+            frame["rank_low"] = np.nan
+            frame["rank_high"] = np.nan
+        frame["resamples"] = resamples
+        frames.append(frame)
+    if not frames:
+        return pd.DataFrame(columns=["group", "rank", "term", "score", "stay_share", "rank_low", "rank_high", "resamples"])
+    return pd.concat(frames, ignore_index=True)
