@@ -1,143 +1,305 @@
 """Turn the weigh and compare results into the tables the Keywords view shows.
 
-No statistics are computed here: scores, shares, stability, G², Log Ratio and
-adjusted p all come from the core results; this module only selects, renames
-and orders their columns for display.
+No statistic is computed here: scores, shares, stability, G², Log Ratio and
+adjusted p all come from the core (``WeighResult.keywords`` and the named
+tables of ``CompareResult``); this module selects, renames and orders their
+columns for display. A comparison of two named groups that the run did not
+make is obtained by running the compare stage itself with that reference
+group (:func:`pair_study`), exactly what ``termloom run --set
+compare.reference=B`` would do.
 """
 
 from __future__ import annotations
 
-from typing import Any
-
 import pandas as pd
 
+from workbench.core.compare import POOLED, CompareResult
+from workbench.core.groups import table_name
 from workbench.core.pipeline import RunOutputs
+from workbench.core.settings import Study
 
-TOP_COLUMNS = ["rank", "term", "score", "share", "df", "stability"]
-KEYNESS_COLUMNS = ["term", "freq_a", "freq_b", "g2", "log_ratio", "p_adj", "direction"]
+TOP_COLUMNS = ["rank", "term", "score", "share", "mentions", "stability"]
+KEYNESS_COLUMNS = ["term", "freq_group", "freq_ref", "share_group", "share_ref", "g2", "log_ratio", "p_adj", "direction"]
+#: Rankings offered per kind of scope: (key, label).
+RANKINGS = {
+    "corpus": [("mean_weight", "mean TF-IDF"), ("doc_share", "share of answers")],
+    "group": [("c_tfidf", "class TF-IDF"), ("mean_tfidf", "mean TF-IDF")],
+}
 
 
-def keyword_scopes(outputs: RunOutputs) -> list[tuple[str, str]]:
-    """``(scope id, label)`` pairs: each language, the pooled corpus, then each group value."""
+# ---------------------------------------------------------------------------- scopes
+
+
+def units(outputs: RunOutputs) -> list[str]:
+    """Languages with a keyword table, then ``pooled``."""
     weighed = outputs.weighed
     if weighed is None:
         return []
-    scopes = []
-    for key in sorted(k for k in weighed.keywords if k != "pooled"):
-        scopes.append((f"lang:{key}", f"language {key}"))
-    if "pooled" in weighed.keywords:
-        scopes.append(("pooled", "all languages (pooled)"))
-    for key, label in group_keyword_keys(outputs):
-        scopes.append((f"group:{key}", label))
-    return scopes
-
-
-def group_keyword_keys(outputs: RunOutputs) -> list[tuple[str, str]]:
-    """Per-group keyword tables of the compare stage, as ``(table key, label)``."""
-    compared = outputs.compared
-    if compared is None:
-        return []
-    tables: dict[str, Any] = getattr(compared, "group_keywords", None) or {}
-    return [(key, f"group {key}") for key in sorted(tables)]
-
-
-def top_keywords(outputs: RunOutputs, scope: str, ranking: str = "mean_weight") -> pd.DataFrame:
-    """The top-k table of one scope with columns :data:`TOP_COLUMNS` (stability may be empty)."""
-    weighed = outputs.weighed
-    if weighed is None:
-        return pd.DataFrame(columns=TOP_COLUMNS)
-    if scope.startswith("lang:"):
-        table = weighed.keywords.get(scope.removeprefix("lang:"))
-    elif scope == "pooled":
-        table = weighed.keywords.get("pooled")
-    elif scope.startswith("group:") and outputs.compared is not None:
-        table = (getattr(outputs.compared, "group_keywords", None) or {}).get(scope.removeprefix("group:"))
-    else:
-        table = None
-    if table is None or table.empty:
-        return pd.DataFrame(columns=TOP_COLUMNS)
-    if "ranking" in table:
-        table = table[table["ranking"] == ranking]
-    frame = pd.DataFrame(
-        {
-            "rank": table["rank"].to_numpy() if "rank" in table else range(1, len(table) + 1),
-            "term": table["term"].astype(str).to_numpy(),
-            "score": table[ranking].to_numpy() if ranking in table else table.iloc[:, 0].to_numpy(),
-            "share": table["doc_share"].to_numpy() if "doc_share" in table else None,
-            "df": table["df"].to_numpy() if "df" in table else None,
-            "stability": stability_of(outputs, scope, table["term"].astype(str).tolist()),
-        }
-    )
-    return frame.reset_index(drop=True)
-
-
-def stability_of(outputs: RunOutputs, scope: str, terms: list[str]) -> list[float | None]:
-    """Bootstrap stability (share of resamples keeping the term in the top k), where the compare stage has it."""
-    compared = outputs.compared
-    stability: dict[str, Any] = getattr(compared, "stability", None) or {}
-    key = scope.removeprefix("lang:").removeprefix("group:")
-    table = stability.get(key)
-    if table is None or "term" not in table:
-        return [None] * len(terms)
-    column = next((c for c in ("stability", "share", "kept_share") if c in table), None)
-    if column is None:
-        return [None] * len(terms)
-    values = dict(zip(table["term"].astype(str), table[column], strict=False))
-    return [values.get(term) for term in terms]
+    languages = sorted(k for k in weighed.keywords if k != POOLED)
+    return languages + ([POOLED] if POOLED in weighed.keywords else [])
 
 
 def group_columns(outputs: RunOutputs) -> list[str]:
-    """Group columns the study compares (``compare.groups``, else ``columns.groups``) present in the answers."""
-    study = outputs.study
-    names = list(study.compare.groups or study.columns.groups)
-    answers = outputs.answers
-    return [name for name in names if f"group:{name}" in answers]
-
-
-def group_values(outputs: RunOutputs, column: str | None) -> list[str]:
-    if not column:
+    """Groupings the compare stage made tables for, in the study's order."""
+    compared: CompareResult | None = outputs.compared
+    if compared is None:
         return []
-    values = outputs.answers[f"group:{column}"].dropna().astype(str).unique()
-    return sorted(values)
+    sizes = compared.tables.get("group_sizes")
+    if sizes is None or sizes.empty:
+        return []
+    return list(dict.fromkeys(sizes["grouping"].astype(str)))
+
+
+def group_values(outputs: RunOutputs, grouping: str | None) -> list[str]:
+    compared: CompareResult | None = outputs.compared
+    if compared is None or not grouping:
+        return []
+    sizes = compared.tables.get("group_sizes")
+    if sizes is None or sizes.empty:
+        return []
+    values = sizes.loc[sizes["grouping"].astype(str) == grouping, "group"].astype(str)
+    return list(dict.fromkeys(values))
+
+
+def keyword_scopes(outputs: RunOutputs) -> list[tuple[str, str]]:
+    """``(scope id, label)``: each language, pooled, then every group of every grouping in each unit."""
+    scopes = []
+    for unit in units(outputs):
+        scopes.append((f"unit:{unit}", "all languages (pooled)" if unit == POOLED else f"language {unit}"))
+    compared = outputs.compared
+    if compared is not None:
+        for grouping in group_columns(outputs):
+            for unit in units(outputs):
+                table = compared.tables.get(table_name("group_keywords", grouping, unit))
+                if table is None or table.empty:
+                    continue
+                for value in dict.fromkeys(table["group"].astype(str)):
+                    where = "pooled" if unit == POOLED else unit
+                    scopes.append((f"group:{grouping}\x1f{value}\x1f{unit}", f"{grouping}={value} · {where}"))
+    return scopes
+
+
+def scope_kind(scope: str | None) -> str:
+    return "group" if scope and scope.startswith("group:") else "corpus"
+
+
+def scope_unit(scope: str | None) -> str | None:
+    if not scope:
+        return None
+    if scope.startswith("unit:"):
+        return scope.removeprefix("unit:")
+    if scope.startswith("group:"):
+        return scope.split("\x1f")[-1]
+    return None
+
+
+# ---------------------------------------------------------------------------- top keywords
+
+
+def _stability(compared: CompareResult | None, unit: str) -> dict[str, float]:
+    if compared is None:
+        return {}
+    table = compared.tables.get(table_name("stability", unit))
+    if table is None or table.empty:
+        return {}
+    return dict(zip(table["term"].astype(str), table["stay_share"].astype(float), strict=True))
+
+
+def top_keywords(outputs: RunOutputs, scope: str, ranking: str) -> pd.DataFrame:
+    """One scope's top-k list with :data:`TOP_COLUMNS`.
+
+    For a language or the pooled corpus: the weigh stage's keyword table
+    (``score`` = the chosen ranking, ``share`` = ``doc_share``, ``mentions`` =
+    ``df``) with the compare stage's bootstrap ``stay_share`` where the term is
+    in that unit's stability list. For a group: the compare stage's group
+    keywords (``share`` = ``share_respondents``, ``mentions`` = respondents,
+    ``stability`` = ``stay_share``).
+    """
+    empty = pd.DataFrame(columns=TOP_COLUMNS)
+    weighed = outputs.weighed
+    if weighed is None or not scope:
+        return empty
+    if scope.startswith("unit:"):
+        unit = scope.removeprefix("unit:")
+        table = weighed.keywords.get(unit)
+        if table is None or table.empty:
+            return empty
+        table = table[table["ranking"] == ranking]
+        stability = _stability(outputs.compared, unit)
+        terms = table["term"].astype(str)
+        return pd.DataFrame(
+            {
+                "rank": table["rank"].to_numpy(),
+                "term": terms.to_numpy(),
+                "score": table[ranking].to_numpy(float),
+                "share": table["doc_share"].to_numpy(float),
+                "mentions": table["df"].to_numpy(),
+                "stability": [stability.get(t) for t in terms],
+            }
+        )
+    if scope.startswith("group:") and outputs.compared is not None:
+        grouping, value, unit = scope.removeprefix("group:").split("\x1f")
+        table = outputs.compared.tables.get(table_name("group_keywords", grouping, unit))
+        if table is None or table.empty:
+            return empty
+        table = table[(table["group"].astype(str) == value) & (table["ranking"] == ranking)]
+        return pd.DataFrame(
+            {
+                "rank": table["rank"].to_numpy(),
+                "term": table["term"].astype(str).to_numpy(),
+                "score": table["score"].to_numpy(float),
+                "share": table["share_respondents"].to_numpy(float),
+                "mentions": table["respondents"].to_numpy(),
+                "stability": table["stay_share"].to_numpy(float),
+            }
+        )
+    return empty
 
 
 def top_legend(outputs: RunOutputs, scope: str | None, ranking: str) -> str:
-    """One line saying what the numbers are."""
-    weighed = outputs.weighed
-    score = "mean TF-IDF weight over the answers" if ranking == "mean_weight" else "share of answers holding the term"
-    parts = [f"score = {score}", "share = answers holding the term", "stable = share of bootstrap resamples keeping it in the top k"]
-    if weighed is not None and scope:
-        key = "pooled" if scope == "pooled" else scope.split(":", 1)[-1]
-        n = getattr(weighed, "n_documents", {}).get(key)
+    """What the numbers of a top-k list are, in one or two lines."""
+    labels = dict(RANKINGS["corpus"] + RANKINGS["group"])
+    parts = [f"score = {labels.get(ranking, ranking)}"]
+    if scope_kind(scope) == "group":
+        parts.append("share/resp. = respondents of the group mentioning the term")
+    else:
+        parts.append("share/answers = answers holding the term")
+        weighed = outputs.weighed
+        unit = scope_unit(scope)
+        n = weighed.n_documents.get(unit) if weighed is not None and unit else None
         if n is not None:
-            parts.insert(0, f"N = {n:,.0f} answers")
+            parts.insert(0, f"N = {n:,.0f}")
+    resamples = outputs.study.compare.bootstrap
+    parts.append(f"stable = share of {resamples} bootstrap resamples keeping it in the top {outputs.study.compare.top_k}")
     return " · ".join(parts)
 
 
-def two_groups(outputs: RunOutputs, column: str | None, a: str | None, b: str | None) -> tuple[pd.DataFrame, str]:
-    """Keyness of group ``a`` against group ``b`` (or the rest) with columns :data:`KEYNESS_COLUMNS`."""
+# ---------------------------------------------------------------------------- two groups
+
+
+def pair_name(grouping: str, a: str, b: str | None, unit: str) -> str:
+    """The compare stage's table name for group ``a`` against ``b`` (``None``: the rest)."""
+    return table_name("keyness", grouping, a, "vs_rest" if b is None else f"vs_{b}", unit)
+
+
+def pair_study(study: Study, grouping: str, reference: str) -> Study:
+    """The study's compare settings narrowed to one grouping against one reference group (no extras)."""
+    compare = study.compare.model_copy(
+        update={
+            "groups": [grouping],
+            "combinations": [],
+            "reference": reference,
+            "bootstrap": 0,
+            "kwic_terms": [],
+            "glossary": None,
+            "dictionaries": [],
+        }
+    )
+    return study.model_copy(update={"compare": compare})
+
+
+def two_groups(
+    tables: dict[str, pd.DataFrame],
+    outputs: RunOutputs,
+    grouping: str | None,
+    a: str | None,
+    b: str | None,
+    unit: str | None,
+    computed: bool,
+) -> tuple[pd.DataFrame | None, str]:
+    """Keyness of ``a`` against ``b`` (``None``: the rest) in ``unit``, from the compare stage's tables.
+
+    ``tables`` are the run's compare tables plus any computed on request;
+    ``computed`` says whether the comparison against ``b`` has been run. Returns
+    ``None`` (and what is missing) when it has not.
+    """
     empty = pd.DataFrame(columns=KEYNESS_COLUMNS)
     if outputs.compared is None:
         return empty, "the compare stage has not run yet"
-    if not column or not a:
-        return empty, "choose a group column and group A (f, then Tab)"
-    return empty, "two-group comparison is not available in this version"
+    if not grouping or not a or not unit:
+        return empty, "choose a group column and group A (f, then Tab); leave B empty to compare with the rest"
+    if a == b:
+        return empty, "choose two different groups"
+    against = "the rest" if b is None else f"'{b}'"
+    table = tables.get(pair_name(grouping, a, b, unit))
+    if table is None:
+        if not computed:
+            return None, f"computing {grouping} = '{a}' against {against}…"
+        return empty, f"{grouping} = '{a}' against {against} in {unit}: not tested ({_size_status(tables, grouping, a, unit)})"
+    where = "all languages" if unit == POOLED else unit
+    legend = (
+        f"{grouping} = '{a}' (A) against {against} (B) in {where}: {_size_status(tables, grouping, a, unit)} · "
+        "A/B = respondents mentioning · G² (Dunning 1993) · Log Ratio = log2 of the ratio of relative "
+        "frequencies (Hardie 2014) · adj. p = Benjamini–Hochberg · bar: green more in A, red more in B"
+    )
+    return table[KEYNESS_COLUMNS].reset_index(drop=True), legend
 
 
-def concepts(outputs: RunOutputs) -> tuple[pd.DataFrame, list[str], str]:
-    """Cross-language concept table (one row per concept, a column per language)."""
-    if outputs.compared is None:
-        return pd.DataFrame(columns=["concept"]), ["concept"], "the compare stage has not run yet"
-    return pd.DataFrame(columns=["concept"]), ["concept"], "no glossary: set compare.glossary in the study to compare concepts across languages"
+def _size_status(tables: dict[str, pd.DataFrame], grouping: str, group: str, unit: str) -> str:
+    sizes = tables.get("group_sizes")
+    if sizes is None or sizes.empty:
+        return "no group sizes"
+    row = sizes[(sizes["grouping"].astype(str) == grouping) & (sizes["group"].astype(str) == group) & (sizes["unit"] == unit)]
+    if row.empty:
+        return "no respondents in this unit"
+    return f"{int(row['respondents'].iloc[0])} respondents, {row['status'].iloc[0]}"
 
 
-def term_and_language(term: str, scope: str | None, session: Any) -> tuple[str, str]:
-    """Split a language-tagged pooled term (``"de:preis"``); else take the language from the scope."""
-    expected = list(session.study.languages.expected)
+# ---------------------------------------------------------------------------- languages side by side
+
+
+def concepts(outputs: RunOutputs) -> tuple[pd.DataFrame, list[tuple[str, str, bool]], str]:
+    """The glossary concepts with each language's share of respondents; ``(frame, columns, legend)``.
+
+    ``columns`` are ``(key, label, is_share)``.
+    """
+    compared: CompareResult | None = outputs.compared
+    if compared is None:
+        return pd.DataFrame(columns=["concept"]), [("concept", "concept", False)], "the compare stage has not run yet"
+    table = compared.tables.get("concepts_by_language")
+    if table is None or table.empty:
+        unmapped = compared.tables.get("unmapped_terms")
+        hint = " · unmapped_terms in the export lists each language's top terms to start one" if unmapped is not None else ""
+        return (
+            pd.DataFrame(columns=["concept"]),
+            [("concept", "concept", False)],
+            "no glossary: set compare.glossary in the study to compare languages concept by concept" + hint,
+        )
+    languages = [c.removeprefix("share_") for c in table.columns if str(c).startswith("share_")]
+    columns: list[tuple[str, str, bool]] = [("concept", "concept", False)]
+    columns += [(f"share_{lang}", lang, True) for lang in languages]
+    if "spread" in table:
+        columns.append(("spread", "spread", True))
+    legend = "share of each language's respondents mentioning any term of the concept · spread = largest − smallest"
+    return table.reset_index(drop=True), columns, legend
+
+
+def concept_terms(outputs: RunOutputs, concept: str) -> list[tuple[str, str]]:
+    """``(language, term)`` pairs of a concept as found in the answers, for KWIC."""
+    compared: CompareResult | None = outputs.compared
+    table = compared.tables.get("concepts_by_language") if compared is not None else None
+    if table is None:
+        return []
+    row = table[table["concept"].astype(str) == concept]
+    if row.empty:
+        return []
+    pairs = []
+    for column in table.columns:
+        if str(column).startswith("terms_"):
+            language = str(column).removeprefix("terms_")
+            for item in str(row[column].iloc[0] or "").split("; "):
+                term = item.rsplit(" (", 1)[0].strip()
+                if term:
+                    pairs.append((language, term))
+    return pairs
+
+
+def term_and_language(term: str, unit: str | None, expected: list[str]) -> tuple[str, str | None]:
+    """Split a pooled, language-tagged term (``"de:preis"``); else the unit's language (``None``: any)."""
     if ":" in term:
         prefix, rest = term.split(":", 1)
         if prefix in expected or prefix == "und":
             return rest, prefix
-    if scope and scope.startswith("lang:"):
-        return term, scope.removeprefix("lang:")
-    return term, expected[0]
+    if unit and unit != POOLED:
+        return term, unit
+    return term, None

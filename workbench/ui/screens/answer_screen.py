@@ -16,10 +16,14 @@ from workbench.core import corpus as C
 from workbench.core.pii import PLACEHOLDER_RE
 
 
-def _masked(text: str) -> Text:
+def _masked(text: str, masks: Any) -> Text:
+    """Clean text with each mask highlighted: ``masks`` holds ``(type, start, end)`` offsets into it."""
     shown = Text(text)
-    for match in PLACEHOLDER_RE.finditer(text):
-        shown.stylize("bold reverse", match.start(), match.end())
+    spans = [(int(m[1]), int(m[2])) for m in masks] if masks is not None and len(masks) else []
+    if not spans:
+        spans = [(m.start(), m.end()) for m in PLACEHOLDER_RE.finditer(text)]
+    for start, end in spans:
+        shown.stylize("bold reverse", start, end)
     return shown
 
 
@@ -35,7 +39,10 @@ def _value(row: dict[str, Any], key: str) -> str:
 
 
 class AnswerScreen(ModalScreen[None]):
-    BINDINGS: ClassVar[list[BindingType]] = [Binding("escape,enter,q", "close", "Close")]
+    BINDINGS: ClassVar[list[BindingType]] = [
+        Binding("escape,enter,q", "close", "Close"),
+        Binding("r", "toggle_raw", "Raw text", tooltip="Show / hide the raw text (it may hold personal data)"),
+    ]
 
     def __init__(self, row: dict[str, Any]) -> None:
         super().__init__()
@@ -72,17 +79,24 @@ class AnswerScreen(ModalScreen[None]):
             with VerticalScroll(id="answer-body"):
                 yield Static(facts)
                 yield Static(Text("cleaned text (masks highlighted)", style="bold underline"))
-                yield Static(_masked(_value(row, C.CLEAN_TEXT) or _value(row, C.RAW_TEXT)))
-                yield Static(Text("raw text", style="bold underline"))
-                yield Static(Text(_value(row, C.RAW_TEXT)))
+                yield Static(_masked(_value(row, C.CLEAN_TEXT) or _value(row, C.RAW_TEXT), masks))
+                yield Static(Text("raw text hidden: it may hold personal data (r shows it)", style="dim"), id="raw-label")
+                yield Static(Text(_value(row, C.RAW_TEXT)), id="raw-text")
                 terms = _value(row, C.TERMS)
                 if terms:
                     yield Static(Text("terms", style="bold underline"))
                     yield Static(Text(terms))
-            yield Static("Esc close", classes="dialog-hint")
+            yield Static("Esc close · r raw text", classes="dialog-hint")
 
     def on_mount(self) -> None:
+        self.query_one("#raw-text").display = False
         self.query_one("#answer-body").focus()
+
+    def action_toggle_raw(self) -> None:
+        raw = self.query_one("#raw-text")
+        raw.display = not raw.display
+        label = "raw text (as read, personal data unmasked)" if raw.display else "raw text hidden: it may hold personal data (r shows it)"
+        self.query_one("#raw-label", Static).update(Text(label, style="bold underline" if raw.display else "dim"))
 
     def action_close(self) -> None:
         self.dismiss(None)

@@ -7,28 +7,32 @@ holding the term in context.
 
 from __future__ import annotations
 
+import traceback
 from typing import Any, ClassVar
 
 import numpy as np
 import pandas as pd
 from rich.text import Text
-from textual import on
+from textual import on, work
 from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
 from textual.containers import Horizontal, Vertical
 from textual.widget import Widget
 from textual.widgets import Select, Static
 
+from workbench.core.compare import POOLED, compare_corpus
+from workbench.core.errors import TermloomError
+from workbench.core.pipeline import RunOutputs
+from workbench.core.progress import Reporter
 from workbench.ui import keyword_tables as K
 from workbench.ui.bars import bar
-from workbench.ui.kwic_lines import kwic_for
 from workbench.ui.session import Session
 from workbench.ui.widgets.frame_grid import FrameGrid, GridColumn
 from workbench.ui.widgets.kwic_panel import KwicPanel
 from workbench.ui.widgets.view_base import ViewBase
 
 MODE_TOP, MODE_COMPARE, MODE_CONCEPTS = "top keywords", "two groups", "languages side by side"
-RANKINGS = [("mean_weight", "by mean weight"), ("doc_share", "by share of answers")]
+BAR_WIDTH = 12
 
 
 def _number(digits: int) -> Any:
@@ -47,7 +51,15 @@ def _share(value: Any) -> str:
         number = float(value)
     except (TypeError, ValueError):
         return ""
-    return "" if np.isnan(number) else f"{number:.1%}"
+    return "" if np.isnan(number) else f"{number:.0%}"
+
+
+def _count(value: Any) -> str:
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        return ""
+    return "" if np.isnan(number) else f"{number:,.0f}"
 
 
 def _p(value: Any) -> str:
@@ -60,28 +72,33 @@ def _p(value: Any) -> str:
     return "<0.001" if number < 0.001 else f"{number:.3f}"
 
 
-def _bar_text(value: Any) -> Text:
-    return Text(str(value or ""), style="green")
+def _bar(value: Any) -> Text:
+    text = str(value or "")
+    if text.startswith("-"):
+        return Text(text[1:], style="red")
+    return Text(text, style="green")
 
 
 TOP_GRID = [
     GridColumn("rank", "#", 3, "right"),
     GridColumn("term", "term"),
     GridColumn("score", "score", 7, "right", _number(4)),
-    GridColumn("bar", "", 12, format=_bar_text),
-    GridColumn("share", "share", 6, "right", _share),
-    GridColumn("df", "answers", 7, "right"),
+    GridColumn("bar", "", BAR_WIDTH, format=_bar),
+    GridColumn("share", "share", 5, "right", _share),
+    GridColumn("mentions", "n", 6, "right", _count),
     GridColumn("stability", "stable", 6, "right", _share),
 ]
 
 COMPARE_GRID = [
     GridColumn("term", "term"),
-    GridColumn("freq_a", "A", 6, "right"),
-    GridColumn("freq_b", "B", 6, "right"),
-    GridColumn("g2", "G²", 7, "right", _number(2)),
-    GridColumn("log_ratio", "LogRatio", 8, "right", _number(2)),
-    GridColumn("bar", "", 12, format=_bar_text),
-    GridColumn("p_adj", "adj. p", 7, "right", _p),
+    GridColumn("freq_group", "A", 5, "right", _count),
+    GridColumn("freq_ref", "B", 5, "right", _count),
+    GridColumn("share_group", "A%", 4, "right", _share),
+    GridColumn("share_ref", "B%", 4, "right", _share),
+    GridColumn("g2", "G²", 6, "right", _number(1)),
+    GridColumn("log_ratio", "LogR", 5, "right", _number(2)),
+    GridColumn("bar", "", BAR_WIDTH, format=_bar),
+    GridColumn("p_adj", "adj.p", 6, "right", _p),
 ]
 
 
@@ -89,12 +106,14 @@ class KeywordsView(ViewBase):
     TITLE = "Keywords"
 
     BINDINGS: ClassVar[list[BindingType]] = [
-        Binding("t", "mode('top')", "Top", tooltip="Top keywords of a language, a group or all"),
+        Binding("t", "mode('top')", "Top", tooltip="Top keywords of a language, a group or all languages"),
         Binding("c", "mode('compare')", "Compare", tooltip="Compare two groups (G², Log Ratio, adjusted p)"),
         Binding("g", "mode('concepts')", "Concepts", show=False, tooltip="Languages side by side through the glossary"),
-        Binding("left_square_bracket", "scope(-1)", "Prev", show=False, tooltip="Previous language / group"),
-        Binding("right_square_bracket", "scope(1)", "Next", tooltip="Next language / group"),
-        Binding("r", "ranking", "Ranking", show=False, tooltip="Rank by mean weight / by share of answers"),
+        Binding("left_square_bracket", "scope(-1)", "Prev", show=False, tooltip="Previous language / group (group A when comparing)"),
+        Binding("right_square_bracket", "scope(1)", "Next", tooltip="Next language / group (group A when comparing)"),
+        Binding("b", "other(1)", "Group B", show=False, tooltip="Next group B when comparing (the rest, then each group)"),
+        Binding("u", "unit(1)", "Unit", show=False, tooltip="Next language / pooled when comparing"),
+        Binding("r", "ranking", "Ranking", show=False, tooltip="Switch between the two rankings of the list"),
         Binding("k", "kwic", "In context", tooltip="Show the answers holding this term, in context"),
         Binding("f", "filters", "Choices", show=False, tooltip="Go to the choices bar (Tab moves on)"),
         Binding("escape", "close_kwic", "Close", show=False, tooltip="Close the context panel"),
@@ -105,27 +124,25 @@ class KeywordsView(ViewBase):
         self.mode = MODE_TOP
         self.scope: str | None = None
         self.ranking = "mean_weight"
-        self.group_column: str | None = None
+        self.grouping: str | None = None
         self.group_a: str | None = None
         self.group_b: str | None = None
-        self.language_of_row: dict[str, str] = {}
+        self.unit: str | None = None
+        #: (grouping, reference) -> tables of a compare run made on request; cleared by new results.
+        self.pair_tables: dict[tuple[str, str], dict[str, pd.DataFrame]] = {}
+        self._pending: tuple[str, str] | None = None
 
     def compose(self) -> ComposeResult:
         with Vertical(id="keywords-main"):
             with Horizontal(classes="filter-bar"):
-                yield Select(
-                    [(m, m) for m in (MODE_TOP, MODE_COMPARE, MODE_CONCEPTS)],
-                    id="kw-mode",
-                    compact=True,
-                    allow_blank=False,
-                    value=MODE_TOP,
-                )
-                yield Select([], prompt="scope", id="kw-scope", compact=True)
-                yield Select(RANKINGS and [(label, key) for key, label in RANKINGS], id="kw-ranking", compact=True, allow_blank=False, value="mean_weight")
+                yield Select([(m, m) for m in (MODE_TOP, MODE_COMPARE, MODE_CONCEPTS)], id="kw-mode", compact=True, allow_blank=False, value=MODE_TOP)
+                yield Select([], prompt="language / group", id="kw-scope", compact=True)
+                yield Select([], prompt="ranking", id="kw-ranking", compact=True)
                 yield Select([], prompt="group column", id="kw-group", compact=True)
                 yield Select([], prompt="group A", id="kw-a", compact=True)
-                yield Select([], prompt="group B / rest", id="kw-b", compact=True)
-            yield FrameGrid(TOP_GRID, key_column="term", empty_text="keywords appear after the weigh stage", id="kw-grid")
+                yield Select([], prompt="B: the rest", id="kw-b", compact=True)
+                yield Select([], prompt="unit", id="kw-unit", compact=True)
+            yield FrameGrid(TOP_GRID, key_column="term", empty_text="keywords appear once every stage has run", id="kw-grid")
             yield Static("", id="keywords-legend")
         yield KwicPanel(id="kw-kwic")
 
@@ -136,74 +153,139 @@ class KeywordsView(ViewBase):
     def main_widget(self) -> Widget | None:
         return self.grid
 
+    @property
+    def outputs(self) -> RunOutputs | None:
+        session = self.session
+        return session.outputs if session is not None else None
+
     # ------------------------------------------------------------------ data
 
     def outputs_changed(self, session: Session) -> None:
         if session.outputs is None or session.outputs.weighed is None:
             return
-        self._fill_choices(session)
+        self.pair_tables.clear()
+        self._fill_choices()
         self._show()
 
-    def _fill_choices(self, session: Session) -> None:
-        outputs = session.outputs
-        assert outputs is not None
+    def _fill_choices(self) -> None:
+        outputs = self.outputs
+        if outputs is None:
+            return
         scopes = K.keyword_scopes(outputs)
         ids = [key for key, _ in scopes]
         if self.scope not in ids:
             self.scope = ids[0] if ids else None
-        groups = K.group_columns(outputs)
-        if self.group_column not in groups:
-            self.group_column = groups[0] if groups else None
-        values = K.group_values(outputs, self.group_column) if self.group_column else []
+        rankings = K.RANKINGS[K.scope_kind(self.scope)]
+        if self.ranking not in [key for key, _ in rankings]:
+            self.ranking = rankings[0][0]
+        groupings = K.group_columns(outputs)
+        if self.grouping not in groupings:
+            self.grouping = groupings[0] if groupings else None
+        values = K.group_values(outputs, self.grouping)
         if self.group_a not in values:
             self.group_a = values[0] if values else None
-        if self.group_b is not None and self.group_b not in values:
+        if self.group_b not in values:
             self.group_b = None
+        units = K.units(outputs)
+        if self.unit not in units:
+            self.unit = POOLED if POOLED in units else (units[0] if units else None)
         with self.prevent(Select.Changed):
-            scope = self.query_one("#kw-scope", Select)
-            scope.set_options([(label, key) for key, label in scopes])
-            scope.value = self.scope if self.scope else Select.BLANK
-            group = self.query_one("#kw-group", Select)
-            group.set_options([(g, g) for g in groups])
-            group.value = self.group_column or Select.BLANK
-            for select_id, current, prompt_rest in (("#kw-a", self.group_a, False), ("#kw-b", self.group_b, True)):
-                select = self.query_one(select_id, Select)
-                select.set_options([(v, v) for v in values])
-                select.value = current if current else Select.BLANK
+            self._set("#kw-scope", [(label, key) for key, label in scopes], self.scope)
+            self._set("#kw-ranking", [(label, key) for key, label in rankings], self.ranking)
+            self._set("#kw-group", [(g, g) for g in groupings], self.grouping)
+            self._set("#kw-a", [(f"A: {v}", v) for v in values], self.group_a)
+            self._set("#kw-b", [(f"B: {v}", v) for v in values], self.group_b)
+            self._set("#kw-unit", [("all languages" if u == POOLED else u, u) for u in units], self.unit)
         self._show_controls()
 
+    def _set(self, select_id: str, options: list[tuple[str, str]], value: str | None) -> None:
+        select = self.query_one(select_id, Select)
+        select.set_options(options)
+        select.value = value if value in [v for _, v in options] else Select.BLANK
+
     def _show_controls(self) -> None:
-        compare = self.mode == MODE_COMPARE
-        self.query_one("#kw-scope").display = self.mode == MODE_TOP
-        self.query_one("#kw-ranking").display = self.mode == MODE_TOP
-        for select_id in ("#kw-group", "#kw-a", "#kw-b"):
+        top, compare = self.mode == MODE_TOP, self.mode == MODE_COMPARE
+        for select_id in ("#kw-scope", "#kw-ranking"):
+            self.query_one(select_id).display = top
+        for select_id in ("#kw-group", "#kw-a", "#kw-b", "#kw-unit"):
             self.query_one(select_id).display = compare
 
     def _show(self) -> None:
-        session = self.session
-        if session is None or session.outputs is None:
+        outputs = self.outputs
+        if outputs is None or outputs.weighed is None:
             return
-        outputs = session.outputs
         legend = self.query_one("#keywords-legend", Static)
         if self.mode == MODE_TOP:
-            frame = K.top_keywords(outputs, self.scope or "", self.ranking) if self.scope else pd.DataFrame(columns=K.TOP_COLUMNS)
+            frame = K.top_keywords(outputs, self.scope or "", self.ranking)
             top = float(frame["score"].max()) if len(frame) else 0.0
-            frame["bar"] = [bar(float(v), top, 12) for v in frame["score"]] if len(frame) else []
+            frame["bar"] = [bar(float(v), top, BAR_WIDTH) for v in frame["score"]]
             self.grid.columns = TOP_GRID
+            self.grid.key_column = "term"
+            self.grid.empty_text = "no keywords in this scope"
             self.grid.set_frame(frame)
             legend.update(K.top_legend(outputs, self.scope, self.ranking))
         elif self.mode == MODE_COMPARE:
-            frame, note = K.two_groups(outputs, self.group_column, self.group_a, self.group_b)
-            top = float(frame["log_ratio"].abs().max()) if len(frame) else 0.0
-            frame["bar"] = [bar(abs(float(v)), top, 12) for v in frame["log_ratio"]] if len(frame) else []
-            self.grid.columns = COMPARE_GRID
-            self.grid.set_frame(frame)
-            legend.update(note)
+            self._show_pair(outputs)
         else:
             frame, columns, note = K.concepts(outputs)
-            self.grid.columns = [GridColumn(c, c, None if c in ("concept",) else 16) for c in columns]
+            self.grid.columns = [
+                GridColumn(key, label, None if key == "concept" else 7, "left" if key == "concept" else "right", _share if share else None)
+                for key, label, share in columns
+            ]
+            self.grid.key_column = "concept"
+            self.grid.empty_text = "no concepts"
             self.grid.set_frame(frame)
             legend.update(note)
+
+    def _show_pair(self, outputs: RunOutputs) -> None:
+        legend = self.query_one("#keywords-legend", Static)
+        tables = dict(outputs.compared.tables) if outputs.compared is not None else {}
+        computed = self.group_b is None or self.group_b == outputs.study.compare.reference
+        if self.grouping and self.group_b is not None and (self.grouping, self.group_b) in self.pair_tables:
+            tables.update(self.pair_tables[(self.grouping, self.group_b)])
+            computed = True
+        frame, note = K.two_groups(tables, outputs, self.grouping, self.group_a, self.group_b, self.unit, computed)
+        self.grid.columns = COMPARE_GRID
+        self.grid.key_column = "term"
+        if frame is None:
+            self.grid.empty_text = note
+            self.grid.set_frame(pd.DataFrame(columns=K.KEYNESS_COLUMNS + ["bar"]))
+            legend.update(note)
+            assert self.grouping is not None and self.group_b is not None
+            self._compute_pair(outputs, self.grouping, self.group_b)
+            return
+        top = float(frame["log_ratio"].abs().max()) if len(frame) else 0.0
+        frame["bar"] = [
+            ("-" if v < 0 else "") + bar(abs(float(v)), top, BAR_WIDTH) for v in frame["log_ratio"].astype(float)
+        ]
+        self.grid.empty_text = note if frame.empty else "no terms"
+        self.grid.set_frame(frame)
+        legend.update(note)
+
+    @work(thread=True, exclusive=True, group="pair", exit_on_error=False)
+    def _compute_pair(self, outputs: RunOutputs, grouping: str, reference: str) -> None:
+        """Run the compare stage with ``reference`` as the reference group (one grouping, no bootstrap)."""
+        study = K.pair_study(outputs.study, grouping, reference)
+        error = None
+        tables: dict[str, pd.DataFrame] = {}
+        try:
+            tables = compare_corpus(outputs.snapshots["terms"], outputs.weighed, study, Reporter()).tables
+        except TermloomError as exc:
+            error = str(exc)
+        except Exception as exc:  # a bug: one line on screen, the traceback in the log
+            self.log.error(traceback.format_exc())
+            error = f"internal error ({type(exc).__name__}: {exc})"
+        self.app.call_from_thread(self._pair_done, outputs, grouping, reference, tables, error)
+
+    def _pair_done(self, outputs: RunOutputs, grouping: str, reference: str, tables: dict[str, pd.DataFrame], error: str | None) -> None:
+        if outputs is not self.outputs:
+            return
+        if error:
+            self.notify(error, title="Comparison failed", severity="error", timeout=10)
+            return
+        self.pair_tables[(grouping, reference)] = tables
+        if self.mode == MODE_COMPARE:
+            self._show()
 
     # ------------------------------------------------------------------ choices
 
@@ -216,49 +298,72 @@ class KeywordsView(ViewBase):
             self._show_controls()
         elif select_id == "kw-scope":
             self.scope = value
+            self._fill_choices()  # the rankings differ between corpus and group scopes
         elif select_id == "kw-ranking":
-            self.ranking = value or "mean_weight"
+            self.ranking = value or self.ranking
         elif select_id == "kw-group":
-            self.group_column = value
+            self.grouping = value
             self.group_a = self.group_b = None
-            if self.session is not None and self.session.outputs is not None:
-                self._fill_choices(self.session)
+            self._fill_choices()
         elif select_id == "kw-a":
             self.group_a = value
         elif select_id == "kw-b":
             self.group_b = value
+        elif select_id == "kw-unit":
+            self.unit = value
         else:
             return
         self._show()
 
     def action_mode(self, mode: str) -> None:
         self.query_one("#kw-mode", Select).value = {"top": MODE_TOP, "compare": MODE_COMPARE, "concepts": MODE_CONCEPTS}[mode]
-        if mode == "compare":
-            self.query_one("#kw-a", Select).focus()
 
-    def action_scope(self, step: int) -> None:
-        select_id = "#kw-scope" if self.mode == MODE_TOP else "#kw-a"
+    def _cycle(self, select_id: str, step: int, blank: bool = False) -> None:
         select = self.query_one(select_id, Select)
-        options = [value for _, value in select._options if value is not Select.BLANK]  # noqa: SLF001 - the option list
+        options: list[Any] = [value for _, value in select._options if value is not Select.BLANK]  # noqa: SLF001
+        if blank:
+            options = [Select.BLANK, *options]
         if not options:
             return
         current = select.value if select.value in options else options[0]
         select.value = options[(options.index(current) + step) % len(options)]
 
+    def action_scope(self, step: int) -> None:
+        self._cycle("#kw-scope" if self.mode == MODE_TOP else "#kw-a", step)
+
+    def action_other(self, step: int) -> None:
+        self._cycle("#kw-b", step, blank=True)
+
+    def action_unit(self, step: int) -> None:
+        self._cycle("#kw-unit", step)
+
     def action_ranking(self) -> None:
-        self.query_one("#kw-ranking", Select).value = "doc_share" if self.ranking == "mean_weight" else "mean_weight"
+        self._cycle("#kw-ranking", 1)
 
     def action_filters(self) -> None:
         self.query_one("#kw-mode", Select).focus()
 
     def action_kwic(self) -> None:
-        session = self.session
+        outputs = self.outputs
         row = self.grid.current_row()
-        if session is None or row is None:
+        if outputs is None or row is None:
             return
-        term, language = K.term_and_language(str(row.get("term", "")), self.scope, session)
-        lines, note = kwic_for(session, term, language)
-        self.query_one(KwicPanel).show_lines(term, language, lines, note)
+        expected = list(outputs.study.languages.expected)
+        if self.mode == MODE_CONCEPTS:
+            concept = str(row.get("concept", ""))
+            targets = K.concept_terms(outputs, concept)
+            label = f"concept '{concept}'"
+        else:
+            unit = K.scope_unit(self.scope) if self.mode == MODE_TOP else self.unit
+            term, language = K.term_and_language(str(row.get("term", "")), unit, expected)
+            targets = [(language, term)]
+            label = f"'{term}' ({language or 'every language'})"
+        self.query_one(KwicPanel).show_targets(label, outputs, targets)
+
+    def check_action(self, action: str, parameters: tuple[object, ...]) -> bool | None:
+        if action == "close_kwic":
+            return self.query_one(KwicPanel).has_class("-shown")
+        return True
 
     def action_close_kwic(self) -> None:
         self.query_one(KwicPanel).hide()

@@ -19,7 +19,6 @@ from textual.events import Key
 from textual.widget import Widget
 from textual.widgets import Input, Select, Static
 
-from workbench.ui.kwic_lines import kwic_for
 from workbench.ui.screens.prompt_screen import PromptScreen
 from workbench.ui.session import Session
 from workbench.ui.widgets.frame_grid import FrameGrid, GridColumn
@@ -29,23 +28,23 @@ from workbench.ui.widgets.view_base import ViewBase
 SHOW_ALL, SHOW_CONTENT, SHOW_STOP = "all terms", "content terms", "stop words"
 
 
-def _first(frame: pd.DataFrame, *names: str) -> str | None:
-    return next((name for name in names if name in frame.columns), None)
+def terms_frame(vocabulary: pd.DataFrame | None, stop_hits: pd.DataFrame | None) -> pd.DataFrame:
+    """One table per language: the kept terms and the stop words removed, each with ``tf`` and ``df``.
 
-
-def vocabulary_frame(raw: pd.DataFrame) -> pd.DataFrame:
-    """The terms stage's vocabulary with the column names this view shows: term, tf, df, stop."""
-    term = _first(raw, "term", "lemma", "token")
-    if term is None:
-        raise ValueError(f"vocabulary table has no term column (columns: {', '.join(map(str, raw.columns))})")
-    frame = pd.DataFrame({"term": raw[term].astype(str)})
-    tf = _first(raw, "tf", "count", "total_count", "frequency")
-    df = _first(raw, "df", "document_frequency", "answers")
-    stop = _first(raw, "stop", "is_stop", "stop_word")
-    frame["tf"] = raw[tf].to_numpy() if tf else 0
-    frame["df"] = raw[df].to_numpy() if df else 0
-    frame["stop"] = raw[stop].fillna(False).astype(bool).to_numpy() if stop else False
-    return frame
+    The terms stage hands on the two separately (``vocabularies`` and
+    ``stop_hits``); ``stop`` says which list a row came from.
+    """
+    parts = []
+    for table, stop in ((vocabulary, False), (stop_hits, True)):
+        if table is not None and len(table):
+            part = table[["term", "tf", "df"]].copy()
+            part["stop"] = stop
+            parts.append(part)
+    if not parts:
+        return pd.DataFrame({"term": [], "tf": [], "df": [], "stop": []})
+    frame = pd.concat(parts, ignore_index=True)
+    frame["term"] = frame["term"].astype(str)
+    return frame.sort_values(["tf", "term"], ascending=[False, True], kind="stable").reset_index(drop=True)
 
 
 def _stop(value: Any) -> Text:
@@ -122,11 +121,12 @@ class TermsView(ViewBase):
         outputs = session.outputs
         if outputs is None or outputs.terms is None:
             return
-        vocabularies = getattr(outputs.terms, "vocabularies", {}) or {}
-        self.frames = {}
-        for language, raw in vocabularies.items():
-            frame = vocabulary_frame(raw)
-            self.frames[str(language)] = frame.sort_values(["tf", "term"], ascending=[False, True], kind="stable")
+        vocabularies = outputs.terms.vocabularies
+        stop_hits = outputs.terms.stop_hits
+        self.frames = {
+            str(language): terms_frame(vocabularies.get(language), stop_hits.get(language))
+            for language in sorted(set(vocabularies) | set(stop_hits))
+        }
         languages = sorted(self.frames)
         select = self.query_one("#terms-language", Select)
         with self.prevent(Select.Changed):
@@ -258,9 +258,16 @@ class TermsView(ViewBase):
         session = self.session
         if row is None or session is None or self.language is None:
             return
+        if session.outputs is None:
+            return
         term = str(row["term"])
-        lines, note = kwic_for(session, term, self.language)
-        self.query_one(KwicPanel).show_lines(term, self.language, lines, note)
+        self.query_one(KwicPanel).show_targets(f"'{term}' ({self.language})", session.outputs, [(self.language, term)])
+
+    def check_action(self, action: str, parameters: tuple[object, ...]) -> bool | None:
+        if action == "close_kwic":
+            # Escape falls through to the app (cancel work) when the panel is closed.
+            return self.query_one(KwicPanel).has_class("-shown")
+        return True
 
     def action_close_kwic(self) -> None:
         self.query_one(KwicPanel).hide()
