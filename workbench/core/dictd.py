@@ -213,6 +213,8 @@ class DictdDictionary:
     #: can hold half a million lines and most are never looked up).
     entries: dict[str, list[tuple[str, str]]] = field(repr=False)
     utf8: bool = True
+    #: ``False`` when the index keys drop punctuation (dictfmt's default, no ``00databaseallchars``).
+    allchars: bool = False
     _data: _Plain | _Dictzip | None = field(default=None, repr=False)
 
     @property
@@ -230,7 +232,15 @@ class DictdDictionary:
 
     def locations(self, headword: str) -> list[tuple[int, int]]:
         """``(offset, length)`` of every entry filed under ``headword`` (case ignored)."""
-        return [(decode_number(o), decode_number(n)) for o, n in self.entries.get(_key(headword), [])]
+        return [(decode_number(o), decode_number(n)) for o, n in self.entries.get(self.key(headword), [])]
+
+    def key(self, word: str) -> str:
+        """The index key of ``word``: NFC, case-folded, and (unless the dictionary was indexed with all
+        characters) without the punctuation dictfmt leaves out of keys ("Hunde-Egel" -> "hundeegel")."""
+        key = _key(word)
+        if not self.allchars:
+            key = " ".join("".join(c for c in key if c.isalnum() or c.isspace()).split())
+        return key
 
     def definitions(self, headword: str) -> list[str]:
         """Entry texts filed under ``headword`` (case ignored); empty when absent."""
@@ -331,6 +341,7 @@ def open_dictionary(path: Path | str, source: str | None = None, target: str | N
         target=target or guessed[1],
         entries=entries,
         utf8="00databaseutf8" in entries or "00-database-utf8" in entries,
+        allchars="00databaseallchars" in entries or "00-database-allchars" in entries,
     )
 
 
