@@ -1,0 +1,346 @@
+"""The identify stage: each answer's language, with a confidence and where the label came from.
+
+Per answer (columns from ``corpus.py``):
+
+``language``
+    an expected language code, or ``"und"`` (undetermined).
+``confidence``
+    in [0, 1]: the detector's probability of ``language`` among the expected
+    languages (see ``detectors.py``). 1.0 for a decision; for a fallback
+    label, the detector's probability if its best guess was that same
+    language, else 0.0 — a fallback is not evidence.
+``language_source``
+    ``detector``, ``hint``, ``default`` or ``decision``. ``und`` answers
+    carry ``detector`` (the detector, or the rules before it, declined).
+``mixed`` / ``second_language``
+    code-switching, see below.
+
+Precision first
+---------------
+The detector's label is used only when the answer has at least
+``identify.min_letters`` letters **and** the probability reaches
+``identify.min_confidence``. Otherwise ``languages.fallback`` decides:
+``hint`` takes the answer's hint column value when it names an expected
+language (a code such as ``de``, ``DE``, ``de-AT`` or the profile's name,
+``German``), else ``und``; ``default`` takes ``languages.default``; ``und``
+takes ``und``. A confident detector beats the hint, so an answer written in
+German in the English questionnaire is labelled German.
+
+What the detector sees
+----------------------
+The cleaned text without placeholders, emoji, URLs (already placeholders),
+digits and letters of scripts no expected language uses (Arabic or Hebrew
+in a study of Latin-script languages), lower-cased when written all in
+capitals. Letters are counted on
+that text (``str.isalpha``). Each distinct such text is detected once.
+Answers whose clean flags say they are not real answers (non-answer, mash,
+punctuation, too short, empty, personal data only) are not detected at all;
+they take the fallback.
+
+Mixed languages
+---------------
+Answers with at least ``2 * identify.mixed_min_letters`` letters are split
+into segments at sentence punctuation and commas (``. ! ? ; : … ,`` and line
+breaks). Each segment with at least ``max(min_letters, 12)`` letters is
+detected; the letters of segments detected with at least ``min_confidence``
+are summed per language. When two expected languages each reach
+``mixed_min_letters`` letters, the answer is ``mixed``, its label is the
+language with most letters, ``second_language`` the runner-up, the flag
+``mixed_language`` is added and the confidence is the letter-weighted mean
+probability of the majority language's segments.
+
+The default detector
+--------------------
+py3langid, chosen by measurement (``tests/bench/bench_identify.py`` on the
+chatterbot-corpus utterances of en, de, es, fr, it, nl, pt, ru, sv, tr, no
+hint): at the default bars it was the most accurate on 4+ word answers and
+kept wrong labels on 1–3-word answers lowest among the single detectors,
+at ~20,000 distinct texts/s against langdetect's ~400/s; lingua was more
+accurate on the shortest answers but ~10× slower and loads ~1 GB of models
+(numbers in the benchmark's output and the issue's closing note).
+
+Deterministic: detection is a pure function of the text (langdetect is
+seeded), distinct texts are processed in first-appearance order, and ties
+are broken by the order of ``languages.expected``.
+"""
+
+from __future__ import annotations
+
+import functools
+import re
+import unicodedata
+from collections import defaultdict
+
+import emoji
+import pandas as pd
+
+from workbench.core import corpus as C
+from workbench.core.decisions import Decisions
+from workbench.core.detectors import UND, Detector, make_detector
+from workbench.core.errors import SettingsError
+from workbench.core.ledger import Ledger
+from workbench.core.nonanswer import JUNK_CODES
+from workbench.core.pii import PLACEHOLDER_RE
+from workbench.core.profiles import available_languages, load_profiles
+from workbench.core.progress import Reporter
+from workbench.core.settings import Study
+
+STAGE = "identify"
+_BATCH = 5000
+_SEGMENT_RE = re.compile(r"[.!?;:…,\n]+")
+_NOT_TEXT_RE = re.compile(r"\d+")
+MIN_SEGMENT_LETTERS = 12
+
+
+#: The script each language is written in; letters of other scripts are
+#: invisible to detection (a detector restricted to en/de would otherwise
+#: call Arabic text English, having nothing better to offer).
+LANGUAGE_SCRIPTS: dict[str, str] = {"el": "GREEK", "ru": "CYRILLIC"}
+_DEFAULT_SCRIPT = "LATIN"
+
+
+@functools.lru_cache(maxsize=65536)
+def _script(ch: str) -> str:
+    return unicodedata.name(ch, "UNKNOWN").split(" ", 1)[0]
+
+
+def scripts_of(languages: list[str]) -> frozenset[str]:
+    return frozenset(LANGUAGE_SCRIPTS.get(code, _DEFAULT_SCRIPT) for code in languages)
+
+
+def detection_text(clean_text: str, scripts: frozenset[str] = frozenset({_DEFAULT_SCRIPT})) -> str:
+    """What the detector sees: no placeholders, emoji, digits or letters of
+    scripts the expected languages do not use; all-caps text lowered."""
+    text = PLACEHOLDER_RE.sub(" ", clean_text) if "⟨" in clean_text else clean_text
+    if not text.isascii():
+        text = emoji.replace_emoji(text, " ")
+        text = "".join(" " if ch.isalpha() and _script(ch) not in scripts else ch for ch in text)
+    elif _DEFAULT_SCRIPT not in scripts:
+        text = "".join(" " if ch.isalpha() else ch for ch in text)
+    text = _NOT_TEXT_RE.sub(" ", text)
+    text = " ".join(text.split())
+    return text.lower() if text.isupper() else text
+
+
+def count_letters(text: str) -> int:
+    return sum(ch.isalpha() for ch in text)
+
+
+def check_languages(study: Study, detector: Detector) -> None:
+    """Every expected language needs a profile and the detector's support.
+
+    Raises
+    ------
+    SettingsError
+        naming the unsupported codes and listing the supported ones.
+    """
+    profiles = set(available_languages())
+    usable = profiles & detector.supported()
+    bad = [code for code in study.languages.expected if code not in usable]
+    if bad:
+        raise SettingsError(
+            f"languages.expected: {', '.join(repr(c) for c in bad)} not supported "
+            f"(needs a language profile and detector '{detector.name}'); "
+            f"supported codes: {', '.join(sorted(usable))}"
+        )
+    default = study.languages.default
+    if study.languages.fallback == "default" and default not in study.languages.expected:
+        raise SettingsError(
+            f"languages.default = '{default}' is not in languages.expected "
+            f"({', '.join(study.languages.expected)}); add it there or pick one of those"
+        )
+
+
+def _hint_table(study: Study) -> dict[str, str]:
+    """Accepted spellings of each expected language in the hint column."""
+    table: dict[str, str] = {}
+    for code, profile in load_profiles(list(study.languages.expected)).items():
+        table[code] = code
+        table[profile.name.casefold()] = code
+    return table
+
+
+def _read_hint(value: object, table: dict[str, str]) -> str | None:
+    if not isinstance(value, str) or not value.strip():
+        return None
+    text = value.strip().casefold()
+    if text in table:
+        return table[text]
+    return table.get(re.split(r"[-_ ]", text, maxsplit=1)[0])
+
+
+def _segments(text: str, min_letters: int) -> list[tuple[str, int]]:
+    parts = []
+    for piece in _SEGMENT_RE.split(text):
+        letters = count_letters(piece)
+        if letters >= min_letters:
+            parts.append((piece.strip(), letters))
+    return parts
+
+
+def _detect_all(
+    detector: Detector, texts: list[str], expected: list[str], reporter: Reporter, what: str, total: int
+) -> list[tuple[str, float]]:
+    result: list[tuple[str, float]] = []
+    for start in range(0, len(texts), _BATCH):
+        result.extend(detector.detect(texts[start : start + _BATCH], expected))
+        reporter.update(STAGE, min(start + _BATCH, len(texts)), total, what)
+    return result
+
+
+def identify_answers(
+    answers: pd.DataFrame,
+    study: Study,
+    decisions: Decisions,
+    ledger: Ledger,
+    reporter: Reporter,
+) -> pd.DataFrame:
+    """Add language, confidence, language_source, mixed and second_language to a copy of the answers.
+
+    Raises
+    ------
+    SettingsError
+        An expected language without a profile or unknown to the detector,
+        or a ``languages.default`` outside ``languages.expected``.
+    """
+    settings = study.identify
+    expected = list(study.languages.expected)
+    detector = make_detector(settings.detector)
+    check_languages(study, detector)
+    out = answers.copy()
+    n = len(out)
+    order = {code: i for i, code in enumerate(expected)}
+    hint_table = _hint_table(study)
+    fallback = study.languages.fallback
+    scripts = scripts_of(expected)
+
+    ids = out[C.ANSWER_ID].astype(str).tolist() if n else []
+    sources = out[C.SOURCE].astype(str).tolist() if n else []
+    rows = [int(r) for r in out[C.ROW].tolist()] if n else []
+    cleaned = out[C.CLEAN_TEXT].tolist() if n else []
+    flags_in = out[C.FLAGS].tolist() if n and C.FLAGS in out else [[] for _ in range(n)]
+    hints = out[C.HINT].tolist() if C.HINT in out else [None] * n
+
+    # Which distinct texts need the detector.
+    reporter.update(STAGE, 0, n, "preparing texts")
+    valid_decisions = {a: code for a, code in decisions.language.items() if code in order or code == UND}
+    texts: list[str | None] = []
+    letters: list[int] = []
+    distinct: dict[str, int] = {}
+    for i in range(n):
+        junk = any(f in JUNK_CODES for f in (flags_in[i] or ()))
+        if ids[i] in valid_decisions or junk:
+            texts.append(None)
+            letters.append(0)
+            continue
+        text = detection_text(str(cleaned[i]) if isinstance(cleaned[i], str) else "", scripts)
+        count = count_letters(text)
+        texts.append(text)
+        letters.append(count)
+        if count >= settings.min_letters and text not in distinct:
+            distinct[text] = len(distinct)
+    unique = list(distinct)
+    detected = _detect_all(detector, unique, expected, reporter, "detecting languages", len(unique))
+
+    # Segment-level detection for code-switching.
+    mixed_info: dict[int, tuple[str, str, float, dict[str, int]]] = {}
+    min_segment = max(settings.min_letters, MIN_SEGMENT_LETTERS)
+    seg_texts: list[str] = []
+    seg_owner: list[tuple[int, int]] = []
+    for index, text in enumerate(unique):
+        if count_letters(text) >= 2 * settings.mixed_min_letters:
+            parts = _segments(text, min_segment)
+            if len(parts) >= 2:
+                for piece, count in parts:
+                    seg_texts.append(piece)
+                    seg_owner.append((index, count))
+    if seg_texts:
+        seg_result = _detect_all(detector, seg_texts, expected, reporter, "checking for mixed languages", len(seg_texts))
+        per_text: dict[int, dict[str, list[float]]] = defaultdict(dict)
+        for (index, count), (code, prob) in zip(seg_owner, seg_result, strict=True):
+            if code != UND and prob >= settings.min_confidence:
+                tally = per_text[index].setdefault(code, [0.0, 0.0])
+                tally[0] += count
+                tally[1] += count * prob
+        for index, tally in per_text.items():
+            ranked = sorted(tally.items(), key=lambda kv: (-kv[1][0], order[kv[0]]))
+            if len(ranked) >= 2 and ranked[1][1][0] >= settings.mixed_min_letters:
+                first, second = ranked[0], ranked[1]
+                confidence = first[1][1] / first[1][0]
+                mixed_info[index] = (first[0], second[0], confidence, {k: int(v[0]) for k, v in ranked})
+
+    languages: list[str] = []
+    confidences: list[float] = []
+    sources_col: list[str] = []
+    mixed_col: list[bool] = []
+    second_col: list[str | None] = []
+    flags_out: list[list[str]] = []
+    events = []
+    for i in range(n):
+        aid, src, row = ids[i], sources[i], rows[i]
+        flags = list(flags_in[i] or [])
+        mixed, second = False, None
+        decided = decisions.language.get(aid)
+        if decided is not None and aid not in valid_decisions:
+            events.append(
+                ("answer", aid, src, row, STAGE, "flagged", "decision_ignored",
+                 f"language decision '{decided}' ignored: not in languages.expected ({', '.join(expected)})")
+            )  # fmt: skip
+            decided = None
+        if decided is not None:
+            label, confidence, source = decided, 1.0, "decision"
+            events.append(("answer", aid, src, row, STAGE, "kept", "language_by_decision", f"language set to '{decided}' by decision"))
+        else:
+            text = texts[i]
+            guess, prob = UND, 0.0
+            if text is None:
+                reason = "not a real answer (see clean flags); not detected"
+            elif letters[i] < settings.min_letters:
+                reason = f"too few letters to detect ({letters[i]} < identify.min_letters {settings.min_letters})"
+            else:
+                index = distinct[text]
+                guess, prob = detected[index]
+                if index in mixed_info:
+                    guess, second, prob, tally = mixed_info[index]
+                    mixed = True
+                    flags.append("mixed_language")
+                    spread = ", ".join(f"{k} {v} letters" for k, v in tally.items())
+                    events.append(("answer", aid, src, row, STAGE, "flagged", "mixed_language", f"mixed languages: {spread}"))
+                reason = (
+                    f"detector unsure ({guess} {prob:.2f} < identify.min_confidence {settings.min_confidence})"
+                    if guess != UND
+                    else "detector found no usable features"
+                )
+            if guess != UND and (prob >= settings.min_confidence or mixed):
+                label, confidence, source = guess, prob, "detector"
+            else:
+                label, source = UND, "detector"
+                hint = _read_hint(hints[i], hint_table) if fallback == "hint" else None
+                if hint is not None:
+                    label, source = hint, "hint"
+                elif fallback == "default" and study.languages.default:
+                    label, source = study.languages.default, "default"
+                confidence = prob if guess == label else 0.0
+                if label == UND:
+                    message = f"language undetermined: {reason}"
+                    if fallback == "hint":
+                        message += "; no usable hint"
+                    events.append(("answer", aid, src, row, STAGE, "kept", "language_und", message))
+                else:
+                    events.append(("answer", aid, src, row, STAGE, "kept", f"language_from_{source}", f"language '{label}' from the {source}: {reason}"))
+        languages.append(label)
+        confidences.append(float(confidence))
+        sources_col.append(source)
+        mixed_col.append(mixed)
+        second_col.append(second)
+        flags_out.append(flags)
+    ledger.extend(events)
+
+    out[C.LANGUAGE] = pd.Series(languages, index=out.index, dtype=str)
+    out[C.CONFIDENCE] = pd.Series(confidences, index=out.index, dtype=float)
+    out[C.LANGUAGE_SOURCE] = pd.Series(sources_col, index=out.index, dtype=str)
+    out[C.MIXED] = pd.Series(mixed_col, index=out.index, dtype=bool)
+    out[C.SECOND_LANGUAGE] = pd.Series(second_col, index=out.index, dtype=object)
+    out[C.FLAGS] = pd.Series(flags_out, index=out.index, dtype=object)
+    reporter.update(STAGE, n, n, f"{sum(1 for x in languages if x == UND):,} answers undetermined")
+    return out
