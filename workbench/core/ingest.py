@@ -1,0 +1,587 @@
+"""Ingest: read every source of a study into the respondents and answers tables.
+
+Each source is read in chunks by the reader its format needs
+(:mod:`workbench.core.readers`); everything is read as text, so ``"NA"`` or
+``"None"`` typed by a respondent is an answer, not a missing value. Then:
+
+* **Respondents.** Every record read is a respondent (one row of the
+  respondents table), even when all its text cells are empty. The id comes
+  from ``columns.id`` (spaces trimmed); with no id column it is the 1-based
+  record number. A blank id becomes ``row-<n>`` (flagged ``missing_id``). An id
+  seen before keeps the first record's id and later ones become
+  ``<id>#2``, ``<id>#3`` ... (flagged ``duplicate_id``) so that answer ids stay
+  unique. With several sources, generated ids are prefixed with the source
+  label (``answers.csv:17``, ``answers.csv:row-17``).
+* **Answers.** One answer per non-empty text cell, keyed
+  ``answer_key(respondent_id, question)`` with the text column's name as the
+  question, in input order. Cells holding only whitespace are not answers
+  (counted in the import report).
+* **Cells over** :data:`MAX_CELL_CHARS` characters are truncated to that length
+  and flagged ``cell_truncated`` — no survey answer is that long, and one
+  pasted data dump should not stall every later stage.
+* **Copied values.** Group columns become ``group:<column>`` (spaces trimmed,
+  blank = missing), the weight column ``weight`` (float; a decimal comma as in
+  ``1,25`` is read as a decimal; anything else that is not a number becomes NaN
+  and is flagged ``bad_weight`` — validating weights is the weigh stage's job),
+  the language-hint column ``hint`` (trimmed, lower case, blank = ``None``).
+  Without a weight column every weight is 1.0.
+* **Ledger.** Every record gets a row event (``kept``/``read``, or
+  ``kept``/``no_text`` when all its text cells are empty) plus a ``flagged``
+  event per problem; records that could not be read at all (a broken JSON line)
+  get a ``dropped`` event keyed ``<source label>:<record>``. Every answer gets
+  ``kept``/``read``. So rows in = rows accounted for and answers in = answers
+  accounted for.
+
+The respondents table holds every original column except the text columns
+(their text lives in ``answers.raw_text``); an original column whose name
+collides with ``respondent_id``, ``source`` or ``row`` is kept as
+``column:<name>``.
+"""
+
+from __future__ import annotations
+
+import gc
+from collections import Counter
+from collections.abc import Iterator
+from contextlib import contextmanager
+from dataclasses import dataclass, field
+from itertools import repeat
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
+
+from workbench.core.corpus import (
+    ANSWER_ID,
+    HINT,
+    QUESTION,
+    RAW_TEXT,
+    RESPONDENT_ID,
+    ROW,
+    SOURCE,
+    WEIGHT,
+    Corpus,
+    ImportReport,
+    group_column,
+)
+from workbench.core.errors import InputError, SettingsError, did_you_mean
+from workbench.core.ledger import Ledger
+from workbench.core.progress import Reporter
+from workbench.core.readers import CHUNK_ROWS, Chunk, Opened, detect_format, open_source
+from workbench.core.readers.textfolder import ID_COLUMN as TXT_ID, TEXT_COLUMN as TXT_TEXT
+from workbench.core.settings import Source, Study
+
+STAGE = "ingest"
+#: Longest cell kept whole, in characters (1 MB of ASCII text).
+MAX_CELL_CHARS = 1_000_000
+_RESERVED = {RESPONDENT_ID, SOURCE, ROW}
+_DECIMAL_COMMA = r"[+-]?\d+,\d+"
+
+
+@dataclass(frozen=True)
+class Roles:
+    """Which column plays which part, as the study names them (``txt`` sources have fixed names)."""
+
+    id: str | None
+    text: list[str]
+    groups: list[str]
+    weight: str | None
+    hint: str | None
+
+    def named(self) -> list[tuple[str, str]]:
+        """``(study key, column)`` for every column the study names."""
+        pairs = [("columns.id", self.id)] if self.id else []
+        pairs += [("columns.text", t) for t in self.text]
+        pairs += [("columns.groups", g) for g in self.groups]
+        pairs += [("columns.weight", self.weight)] if self.weight else []
+        pairs += [("columns.language_hint", self.hint)] if self.hint else []
+        return pairs
+
+
+def roles_for(study: Study, fmt: str) -> Roles:
+    """The column roles for one source; a folder of .txt files has ``file`` and ``text``."""
+    c = study.columns
+    if fmt == "txt":
+        roles = Roles(c.id or TXT_ID, c.text or [TXT_TEXT], list(c.groups), c.weight, c.language_hint)
+    else:
+        roles = Roles(c.id, list(c.text), list(c.groups), c.weight, c.language_hint)
+    seen: dict[str, str] = {}
+    for key, name in roles.named():
+        if name in seen:
+            if key == seen[name]:
+                raise SettingsError(f"column '{name}' is listed twice in {key}; list it once")
+            raise SettingsError(
+                f"column '{name}' is named in both {seen[name]} and {key}; a column plays one part — fix the study's [columns]"
+            )
+        seen[name] = key
+    return roles
+
+
+def source_labels(study: Study) -> list[str]:
+    """Ledger/corpus label of each source: ``label`` or the file name; must be distinct."""
+    labels = [s.label or Path(s.path).name for s in study.sources]
+    for number, label in enumerate(labels, start=1):
+        if labels.index(label) != number - 1:
+            raise SettingsError(
+                f"sources {labels.index(label) + 1} and {number} are both labelled '{label}'; "
+                "give each [[sources]] table a distinct label = '...'"
+            )
+    return labels
+
+
+def _check_not_study(study: Study, number: int, source: Source) -> None:
+    if study.study_path and Path(source.path).resolve() == Path(study.study_path).resolve():
+        raise SettingsError(
+            f"{study.study_path}: sources[{number}].path points at the study file itself; name the data file instead"
+        )
+
+
+def _listing(columns: list[str]) -> str:
+    shown = ", ".join(columns[:30])
+    return shown + (f" ... ({len(columns) - 30} more)" if len(columns) > 30 else "")
+
+
+def _looks_like_data(columns: list[str]) -> bool:
+    def datum(name: str) -> bool:
+        return name.replace(".", "", 1).replace("-", "", 1).isdigit() or len(name) > 60
+
+    return bool(columns) and sum(map(datum, columns)) * 2 >= len(columns)
+
+
+def check_columns(roles: Roles, columns: list[str], duplicated: dict[str, list[int]], path: Path) -> None:
+    """Raise a one-line error naming the first column the study needs that the source lacks."""
+    if not roles.text:
+        raise SettingsError(
+            f"the study names no text column; set columns.text to the open-ended question column(s) of {path.name} "
+            f"(columns found: {_listing(columns)})"
+        )
+    for key, name in roles.named():
+        if name not in columns:
+            hint = did_you_mean(name, columns)
+            if not hint:
+                folded = [c for c in columns if c.casefold() == name.casefold()]
+                hint = f" (did you mean '{folded[0]}'?)" if folded else ""
+            header = " — the first line looks like data, but the file needs a header row" if _looks_like_data(columns) else ""
+            raise SettingsError(
+                f"{path} has no column '{name}' (named in {key}){hint}; columns found: {_listing(columns)}{header}; "
+                f"fix {key} in the study"
+            )
+        if name in duplicated:
+            where = ", ".join(map(str, duplicated[name]))
+            raise InputError(
+                f"{path}: column '{name}' (named in {key}) appears {len(duplicated[name])} times (positions {where}); "
+                "rename the copies so the study can tell them apart"
+            )
+
+
+# --------------------------------------------------------------------------- assembling
+
+
+@dataclass
+class _Parts:
+    """Everything collected chunk by chunk, joined once at the end."""
+
+    labels: list[str] = field(default_factory=list)
+    label_of_chunk: list[int] = field(default_factory=list)
+    originals: list[pd.DataFrame] = field(default_factory=list)
+    ids: list[pd.Series] = field(default_factory=list)
+    missing: list[np.ndarray] = field(default_factory=list)
+    rows: list[np.ndarray] = field(default_factory=list)
+    no_text: list[np.ndarray] = field(default_factory=list)
+    weights: list[np.ndarray] = field(default_factory=list)
+    hints: list[pd.Series] = field(default_factory=list)
+    groups: dict[str, list[pd.Series]] = field(default_factory=dict)
+    #: answers, in input order: respondent position, question index, text, original length if truncated (else 0)
+    a_pos: list[np.ndarray] = field(default_factory=list)
+    a_q: list[np.ndarray] = field(default_factory=list)
+    a_text: list[pd.Series] = field(default_factory=list)
+    a_cut: list[np.ndarray] = field(default_factory=list)
+    #: row events found while reading: (respondent position, code, message)
+    flags: list[tuple[int, str, str]] = field(default_factory=list)
+    #: events of records that never became respondents
+    dropped: list[tuple[str, str, str, int, str, str, str, str]] = field(default_factory=list)
+    questions: dict[str, int] = field(default_factory=dict)
+    count: int = 0
+
+
+@contextmanager
+def _no_gc() -> Iterator[None]:
+    """Pause the cyclic garbage collector while millions of ledger tuples are built.
+
+    Each allocation burst triggers full collections that walk every live
+    object and free nothing (tuples of strings hold no cycles); pausing them
+    halves the cost of the ledger. The previous state is restored.
+    """
+    was_enabled = gc.isenabled()
+    gc.disable()
+    try:
+        yield
+    finally:
+        if was_enabled:
+            gc.enable()
+
+
+def _strings(values: object) -> pd.Series:
+    """An Arrow array (or anything pyarrow takes) as a pandas ``str`` Series."""
+    array = values if isinstance(values, pa.Array | pa.ChunkedArray) else pa.array(values, type=pa.large_string())
+    return array.to_pandas().reset_index(drop=True)
+
+
+def _chunk_into(parts: _Parts, chunk: Chunk, roles: Roles, label: str, multi: bool, report: ImportReport, tally: Counter) -> None:
+    frame = chunk.frame
+    n = len(frame)
+    rows = chunk.rows
+    start = parts.count
+    for problem in chunk.problems:
+        tally[problem.code] += 1
+        if problem.index is None:
+            parts.dropped.append(("row", f"{label}:{problem.row}", label, int(problem.row), STAGE,
+                                  problem.status, problem.code, problem.message))
+        else:
+            parts.flags.append((start + problem.index, problem.code, problem.message))
+    report.rows += n + sum(1 for p in chunk.problems if p.index is None)
+    if n == 0:
+        return
+    for _key, name in roles.named():
+        if name not in frame.columns:  # JSON Lines: a key absent from every object of this chunk
+            frame[name] = ""
+
+    # over-long cells: truncate, remember for the ledger
+    cut_lengths: dict[str, np.ndarray] = {}
+    for name in frame.columns:
+        lengths = frame[name].str.len().to_numpy(dtype=np.int64, na_value=0)
+        over = lengths > MAX_CELL_CHARS
+        if over.any():
+            frame.loc[over, name] = frame.loc[over, name].str.slice(0, MAX_CELL_CHARS)
+            tally["cell_truncated"] += int(over.sum())
+            if name in roles.text:
+                cut_lengths[name] = np.where(over, lengths, 0)
+            else:
+                for index in np.flatnonzero(over).tolist():
+                    parts.flags.append((start + index, "cell_truncated",
+                                        f"cell '{name}' held {lengths[index]:,} characters; kept the first {MAX_CELL_CHARS:,}"))
+
+    # ids
+    if roles.id is None:
+        ids = _strings(pa.array(rows).cast(pa.large_string()))
+        if multi:
+            ids = f"{label}:" + ids
+        missing = np.zeros(n, dtype=bool)
+    else:
+        ids = frame[roles.id].fillna("").str.strip().reset_index(drop=True)
+        missing = (ids.str.len() == 0).to_numpy(dtype=bool)
+        if missing.any():
+            prefix = f"{label}:row-" if multi else "row-"
+            ids[missing] = [f"{prefix}{r}" for r in rows[missing].tolist()]
+
+    # answers: per question, then interleaved into input order (record, then question)
+    any_text = np.zeros(n, dtype=bool)
+    positions, questions, texts, cuts = [], [], [], []
+    for name in roles.text:
+        cells = frame[name]
+        present = ((cells.str.len() > 0) & ~cells.str.isspace()).to_numpy(dtype=bool, na_value=False)
+        any_text |= present
+        tally["empty_cells"] += int(n - present.sum())
+        index = np.flatnonzero(present)
+        if index.size:
+            positions.append(index)
+            questions.append(np.full(index.size, parts.questions.setdefault(name, len(parts.questions)), dtype=np.int32))
+            texts.append(cells.iloc[index])
+            cut = cut_lengths.get(name)
+            cuts.append(cut[index] if cut is not None else np.zeros(index.size, dtype=np.int64))
+    if positions:
+        pos = np.concatenate(positions)
+        q = np.concatenate(questions)
+        text = pd.concat(texts, ignore_index=True)
+        cut = np.concatenate(cuts)
+        if len(positions) > 1:
+            order = np.lexsort((q, pos))
+            pos, q, cut = pos[order], q[order], cut[order]
+            text = text.iloc[order]
+        parts.a_pos.append(start + pos)
+        parts.a_q.append(q)
+        parts.a_text.append(text.reset_index(drop=True))
+        parts.a_cut.append(cut)
+
+    # weight, hint, groups
+    if roles.weight:
+        raw = frame[roles.weight].fillna("").str.strip()
+        try:  # Arrow's parser is ~20x faster than pandas' and enough when every value is a plain number
+            weight = pc.cast(pa.array(raw, type=pa.large_string()), pa.float64()).to_numpy(zero_copy_only=False).copy()
+        except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+            weight = pd.to_numeric(raw, errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan, copy=True)
+        unread = np.isnan(weight)
+        if unread.any():
+            comma = unread & raw.str.fullmatch(_DECIMAL_COMMA).to_numpy(dtype=bool, na_value=False)
+            if comma.any():
+                weight[comma] = pd.to_numeric(raw[comma].str.replace(",", ".", regex=False), errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
+                tally["decimal_comma"] += int(comma.sum())
+            for index in np.flatnonzero(np.isnan(weight)).tolist():
+                value = raw.iloc[index]
+                text_ = "is blank" if not value else f"{value[:40]!r} is not a number"
+                parts.flags.append((start + index, "bad_weight",
+                                    f"weight in column '{roles.weight}' {text_}; left empty (NaN) for the weigh stage"))
+    else:
+        weight = np.ones(n, dtype=np.float64)
+    if roles.hint:
+        hint = frame[roles.hint].str.strip().str.lower()
+        hint = hint.where(hint.str.len() > 0).reset_index(drop=True)
+    else:
+        hint = pd.Series(np.full(n, np.nan), dtype=str)
+    for name in roles.groups:
+        values = frame[name].str.strip()
+        parts.groups.setdefault(name, []).append(values.where(values.str.len() > 0).reset_index(drop=True))
+
+    keep = [c for c in frame.columns if c not in roles.text]
+    originals = frame[keep].reset_index(drop=True)
+    originals.columns = [f"column:{c}" if c in _RESERVED else c for c in keep]
+    if label not in parts.labels:
+        parts.labels.append(label)
+    parts.label_of_chunk.append(parts.labels.index(label))
+    parts.originals.append(originals)
+    parts.ids.append(ids)
+    parts.missing.append(missing)
+    parts.rows.append(rows.astype(np.int64))
+    parts.no_text.append(~any_text)
+    parts.weights.append(weight)
+    parts.hints.append(hint)
+    parts.count += n
+
+
+def _unique_ids(ids: pd.Series, sources: np.ndarray, rows: np.ndarray) -> tuple[pd.Series, list[tuple[int, str, str]]]:
+    """Make ids unique: the first record keeps its id, later ones get ``#2``, ``#3`` ... (skipping taken ones)."""
+    repeated = ids.duplicated(keep=False).to_numpy(dtype=bool)
+    if not repeated.any():
+        return ids, []
+    taken = set(ids.tolist())
+    first_at: dict[str, int] = {}
+    next_suffix: dict[str, int] = {}
+    changed: list[int] = []
+    new_ids: list[str] = []
+    flags = []
+    for position, base in zip(np.flatnonzero(repeated).tolist(), ids[repeated].tolist()):
+        if base not in first_at:
+            first_at[base] = position
+            continue
+        number = next_suffix.get(base, 2)
+        candidate = f"{base}#{number}"
+        while candidate in taken:
+            number += 1
+            candidate = f"{base}#{number}"
+        next_suffix[base] = number + 1
+        taken.add(candidate)
+        changed.append(position)
+        new_ids.append(candidate)
+        original = first_at[base]
+        flags.append((position, "duplicate_id",
+                      f"respondent id '{base}' was already used by record {rows[original]} of {sources[original]}; "
+                      f"this record's id became '{candidate}' so its answers stay separate"))
+    final = ids.copy()
+    final.iloc[changed] = new_ids
+    return final, flags
+
+
+def _assemble(parts: _Parts, roles_by_label: dict[str, Roles], ledger: Ledger) -> tuple[pd.DataFrame, pd.DataFrame]:
+    if not parts.ids:
+        raise InputError("the study's sources hold no records")
+    counts = [len(r) for r in parts.rows]
+    codes = np.repeat(np.asarray(parts.label_of_chunk, dtype=np.int64), counts)
+    label_objects = np.array(parts.labels, dtype=object)
+    sources = label_objects[codes]  # shares the label strings, no per-row copies
+    rows = np.concatenate(parts.rows)
+    ids = pd.concat(parts.ids, ignore_index=True)
+    final, dup_flags = _unique_ids(ids, sources, rows)
+    final_arrow = pa.array(final, type=pa.large_string())
+    source_arrow = pc.take(pa.array(parts.labels, type=pa.large_string()), pa.array(codes))
+
+    respondents = pd.concat(
+        [pd.DataFrame({RESPONDENT_ID: _strings(final_arrow), SOURCE: _strings(source_arrow), ROW: rows}),
+         pd.concat(parts.originals, ignore_index=True)],
+        axis=1,
+    )
+
+    if parts.a_pos:
+        pos = np.concatenate(parts.a_pos)
+        q = np.concatenate(parts.a_q)
+        cut = np.concatenate(parts.a_cut)
+        text = pd.concat(parts.a_text, ignore_index=True)
+    else:
+        pos = np.empty(0, dtype=np.int64)
+        q = np.empty(0, dtype=np.int32)
+        cut = np.empty(0, dtype=np.int64)
+        text = pd.Series([], dtype=str)
+    names = list(parts.questions)
+    take = pa.array(pos)
+    respondent = pc.take(final_arrow, take)
+    question = pc.take(pa.array(names, type=pa.large_string()), pa.array(q))
+    answer_ids = pc.binary_join_element_wise(respondent, question, pa.scalar("|", type=pa.large_string()))
+    answers = pd.DataFrame({
+        ANSWER_ID: _strings(answer_ids),
+        RESPONDENT_ID: _strings(respondent),
+        QUESTION: _strings(question),
+        SOURCE: _strings(pc.take(source_arrow, take)),
+        ROW: rows[pos],
+        RAW_TEXT: text,
+        WEIGHT: np.concatenate(parts.weights)[pos],
+        HINT: pd.concat(parts.hints, ignore_index=True).iloc[pos].reset_index(drop=True),
+    })
+    for name, pieces in parts.groups.items():
+        answers[group_column(name)] = pd.concat(pieces, ignore_index=True).iloc[pos].reset_index(drop=True)
+
+    # ledger: one base event per record, then one flagged event per problem
+    keys = final.tolist()
+    source_list = sources.tolist()
+    numbers = rows.tolist()
+    no_text = np.concatenate(parts.no_text)
+    pick = no_text.astype(np.int64)
+    row_codes = np.array(["read", "no_text"], dtype=object)[pick].tolist()
+    row_messages = np.array(["read", "kept as a respondent; every text column is empty"], dtype=object)[pick].tolist()
+    with _no_gc():
+        ledger.extend(list(zip(repeat("row"), keys, source_list, numbers, repeat(STAGE), repeat("kept"), row_codes, row_messages)))
+    ledger.extend(parts.dropped)
+    flags = list(parts.flags) + dup_flags
+    missing = np.concatenate(parts.missing)
+    for position in np.flatnonzero(missing).tolist():
+        column = roles_by_label[source_list[position]].id
+        flags.append((position, "missing_id",
+                      f"record {numbers[position]} has no id in column '{column}'; given the id '{ids.iloc[position]}'"))
+    flags.sort(key=lambda f: f[0])
+    ledger.extend([("row", keys[p], source_list[p], numbers[p], STAGE, "flagged", code, message) for p, code, message in flags])
+
+    a_keys = answers[ANSWER_ID].tolist()
+    a_sources = sources[pos].tolist()
+    a_rows = rows[pos].tolist()
+    a_messages = np.array([f"read from column '{name}'" for name in names], dtype=object)[q].tolist() if names else []
+    with _no_gc():
+        ledger.extend(list(zip(repeat("answer"), a_keys, a_sources, a_rows, repeat(STAGE), repeat("kept"), repeat("read"), a_messages)))
+    for index in np.flatnonzero(cut).tolist():
+        ledger.answer(a_keys[index], a_sources[index], a_rows[index], STAGE, "flagged", "cell_truncated",
+                      f"answer held {cut[index]:,} characters; kept the first {MAX_CELL_CHARS:,}")
+    return respondents, answers
+
+
+# --------------------------------------------------------------------------- the stage
+
+
+_NOTES = {
+    "ragged_row": "{n:,} records had more fields than the header (extra fields dropped; ledger code ragged_row)",
+    "bad_json": "{n:,} lines were not JSON objects and were skipped (ledger code bad_json)",
+    "undecodable": "{n:,} files could not be decoded and were skipped (ledger code undecodable)",
+    "unreadable": "{n:,} files could not be read and were skipped (ledger code unreadable)",
+    "cell_truncated": "{n:,} cells over {limit:,} characters were truncated (ledger code cell_truncated)",
+    "empty_cells": "{n:,} empty text cells (not answers)",
+    "decimal_comma": "{n:,} weights written with a decimal comma were read as decimals",
+}
+
+
+def _read_one(
+    study: Study, number: int, source: Source, label: str, multi: bool, parts: _Parts, reporter: Reporter,
+    done_before: int, chunk_rows: int,
+) -> tuple[ImportReport, Roles]:
+    _check_not_study(study, number, source)
+    fmt = detect_format(source)
+    report = ImportReport(source=label, path=str(source.path), format=fmt)
+    roles = roles_for(study, fmt)
+    opened: Opened = open_source(source, report, text_columns=roles.text, chunk_rows=chunk_rows)
+    path = Path(source.path)
+    if opened.columns is not None:
+        check_columns(roles, opened.columns, opened.duplicated, path)
+    tally: Counter = Counter()
+    seen: dict[str, None] = dict.fromkeys(opened.columns or [])
+    kept_before = parts.count
+    dropped_before = len(parts.dropped)
+    try:
+        for chunk in opened.chunks:
+            seen.update(dict.fromkeys(chunk.frame.columns))
+            _chunk_into(parts, chunk, roles, label, multi, report, tally)
+            total = max(opened.expected_rows, report.rows)
+            reporter.update(STAGE, done_before + report.rows, done_before + total, f"{label}: {report.rows:,} records read")
+    finally:
+        opened.chunks.close()  # type: ignore[attr-defined]
+    if opened.columns is None:
+        report.columns = list(seen)
+        check_columns(roles, report.columns, {}, path)
+    if parts.count == kept_before:
+        if report.rows == 0:
+            where = f"sheet '{report.sheet}' of {path}" if report.sheet else str(path)
+            raise InputError(f"{where} has a header row but no data rows; export the answers with the header")
+        raise InputError(
+            f"{path}: none of its {report.rows:,} records could be read (first problem: {parts.dropped[dropped_before][7]})"
+        )
+    for code, count in tally.items():
+        if code in _NOTES and count:
+            report.notes.append(_NOTES[code].format(n=count, limit=MAX_CELL_CHARS))
+    return report, roles
+
+
+def read_corpus(study: Study, ledger: Ledger, reporter: Reporter, *, chunk_rows: int = CHUNK_ROWS) -> Corpus:
+    """Read every source of ``study`` into a :class:`~workbench.core.corpus.Corpus`.
+
+    Parameters
+    ----------
+    study
+        The resolved study; ``sources`` and ``columns`` are used.
+    ledger
+        Receives one ``row`` event per input record and one ``answer`` event
+        per answer (see the module docstring for codes).
+    reporter
+        Progress is reported per chunk as records read of an estimated total.
+    chunk_rows
+        Records per chunk; smaller chunks use less memory.
+
+    Returns
+    -------
+    Corpus
+        ``respondents`` (one row per record read), ``answers`` (one row per
+        non-empty text cell, in input order) and one
+        :class:`~workbench.core.corpus.ImportReport` per source.
+
+    Raises
+    ------
+    InputError
+        A source is missing, unreadable, empty, binary, undecodable or malformed.
+    SettingsError
+        The study names a column a source lacks, or contradicts itself.
+    """
+    labels = source_labels(study)
+    multi = len(study.sources) > 1
+    parts = _Parts()
+    reports: list[ImportReport] = []
+    roles_by_label: dict[str, Roles] = {}
+    done = 0
+    for number, (source, label) in enumerate(zip(study.sources, labels), start=1):
+        report, roles = _read_one(study, number, source, label, multi, parts, reporter, done, chunk_rows)
+        done += report.rows
+        reports.append(report)
+        roles_by_label[label] = roles
+    reporter.update(STAGE, done, done, "building the answers table")
+    respondents, answers = _assemble(parts, roles_by_label, ledger)
+    return Corpus(respondents=respondents, answers=answers, reports=reports)
+
+
+def peek_source(path: Path, rows: int = 2000) -> tuple[pd.DataFrame, ImportReport]:
+    """The first ``rows`` records of a data file or .txt folder, as strings, and what the reader decided.
+
+    Used by ``termloom init``; skips whole-file passes so large files open fast.
+    """
+    source = Source(path=Path(path))
+    fmt = detect_format(source)
+    report = ImportReport(source=Path(path).name, path=str(path), format=fmt)
+    opened = open_source(source, report, text_columns=[], chunk_rows=rows, full=False)
+    frames = []
+    count = 0
+    try:
+        for chunk in opened.chunks:
+            frames.append(chunk.frame)
+            count += len(chunk.frame)
+            if count >= rows:
+                break
+    finally:
+        opened.chunks.close()  # type: ignore[attr-defined]
+    frame = pd.concat(frames, ignore_index=True).head(rows) if frames else pd.DataFrame(columns=opened.columns or [])
+    frame = frame.fillna("")
+    report.rows = len(frame)
+    report.columns = list(frame.columns) if opened.columns is None else opened.columns
+    return frame, report

@@ -1,0 +1,290 @@
+"""CSV and TSV files: encoding and delimiter sniffed, RFC 4180 quoting, read in chunks.
+
+Quoting follows RFC 4180 §2: a field may be enclosed in double quotes; a
+quoted field may hold the delimiter, CR/LF line breaks and double quotes, the
+latter written twice (``""``). Lines may end in CRLF or LF. Blank lines are not
+records. A first line ``sep=;`` (written by some spreadsheet software) names
+the delimiter and is skipped.
+
+Clean files go through pyarrow's streaming CSV reader (which produces the
+Arrow strings the later stages work on, with no per-row Python). Ragged
+records are handled by switching, at the first one, to the standard-library
+``csv`` reader for the rest of the file:
+
+* **too many fields**: the row is kept with the first *n* fields (n = header
+  width); if any extra field holds text, the row is flagged ``ragged_row`` and
+  the ledger message shows what was dropped. Extra fields that are all empty
+  (a trailing delimiter) are dropped silently.
+* **too few fields**: the missing trailing cells read as empty — exporters
+  routinely omit trailing empty fields, so this is not flagged.
+
+Both parsers read a quote that never closes as running to the end of the
+file (as Python's ``csv`` module does with ``strict=False``). When the last
+record's last field holds further lines that look like records, that record
+is flagged ``unclosed_quote`` and the import report carries a warning.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import itertools
+import re
+from collections.abc import Iterator
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from workbench.core.corpus import ImportReport
+from workbench.core.errors import InputError
+from workbench.core.readers.base import Chunk, Opened, RowProblem, repair_header, string_frame
+from workbench.core.readers.encoding import scan_file
+from workbench.core.readers.files import check_readable_file
+from workbench.core.settings import Source
+
+DELIMITERS = ",;\t|"
+#: Characters of decoded text used to sniff the delimiter and read the header.
+SAMPLE_CHARS = 256 * 1024
+_SEP_LINE = re.compile(r"^sep=([,;\t|])\r?\n")
+
+
+def _shown(delimiter: str) -> str:
+    return {"\t": "tab", ",": "comma", ";": "semicolon", "|": "pipe"}[delimiter]
+
+
+def _records(text: str, delimiter: str, limit: int = 200) -> list[list[str]]:
+    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
+    try:
+        return [r for r in itertools.islice(reader, limit) if r]
+    except csv.Error:
+        return []
+
+
+def _consistency(text: str, delimiter: str) -> tuple[float, int]:
+    """Share of sample records as wide as the first one, and that width."""
+    records = _records(text, delimiter)
+    if not records:
+        return 0.0, 0
+    width = len(records[0])
+    body = records[1:] or records
+    return sum(len(r) == width for r in body) / len(body), width
+
+
+def sniff_delimiter(text: str) -> tuple[str, str]:
+    """Pick the delimiter among ``, ; tab |`` for a decoded sample; return ``(delimiter, how)``.
+
+    ``csv.Sniffer`` (restricted to the four candidates) is asked first and kept
+    when its choice splits the header into more than one column and at least
+    90 % of the sampled records into the same number of fields. Otherwise the
+    candidates are ranked by that share, then by the number of columns.
+    """
+    complete = text[: text.rfind("\n")] if "\n" in text else text
+    scores = {d: _consistency(complete, d) for d in DELIMITERS}
+    try:
+        sniffed = csv.Sniffer().sniff(complete[:65536], delimiters=DELIMITERS).delimiter
+    except csv.Error:
+        sniffed = None
+    if sniffed in scores and scores[sniffed][1] > 1 and scores[sniffed][0] >= 0.9:
+        return sniffed, "sniffed"
+    ranked = sorted(
+        ((share, width, -DELIMITERS.index(d), d) for d, (share, width) in scores.items() if width > 1),
+        reverse=True,
+    )
+    if not ranked:
+        return ",", "one column, no delimiter found"
+    return ranked[0][3], "counted"
+
+
+def open_delimited(
+    source: Source, report: ImportReport, *, tab: bool, chunk_rows: int, full: bool = True
+) -> Opened:
+    """Sniff and open a CSV/TSV file; fill ``report`` with what was decided."""
+    path = Path(source.path)
+    what = "TSV file" if tab else "CSV file"
+    check_readable_file(path, what)
+    scan = scan_file(path, source.encoding, what=what, full=full)
+    report.encoding = scan.encoding
+    report.sha256 = scan.sha256
+    report.notes.extend(scan.notes)
+
+    with path.open(encoding=scan.encoding, newline="") as handle:
+        sample = handle.read(SAMPLE_CHARS)
+    skip = 0
+    sep_line = _SEP_LINE.match(sample)
+    if sep_line:
+        skip = 1
+        sample = sample[sep_line.end():]
+    if source.delimiter != "auto":
+        delimiter, how = source.delimiter, "set in the study"
+    elif sep_line:
+        delimiter, how = sep_line.group(1), "named by the file's 'sep=' line"
+    elif tab:
+        delimiter, how = "\t", "TSV"
+    else:
+        delimiter, how = sniff_delimiter(sample)
+    report.delimiter = delimiter
+    if how not in ("set in the study", "TSV", "sniffed"):
+        report.notes.append(f"delimiter: {_shown(delimiter)} ({how})")
+
+    reader = csv.reader(io.StringIO(sample, newline=""), delimiter=delimiter)
+    header = next((r for r in reader if r), None)
+    if header is None or (len(header) == 1 and not header[0].strip()):
+        raise InputError(f"{path} holds only blank lines; export the data again with a header row and answers")
+    # physical lines up to the end of the header; pyarrow skips lines, not records
+    header_lines = skip + reader.line_num
+    names, duplicated, notes = repair_header(header)
+    report.columns = names
+    report.notes.extend(notes)
+    # pyarrow batches by bytes: size blocks so a batch holds about chunk_rows records
+    records_in_sample = max(len(_records(sample, delimiter, limit=1_000_000)), 1)
+    per_record = max(len(sample.encode("utf-8", "replace")) // records_in_sample, 16)
+    block = int(min(max(chunk_rows * per_record, 4096), 64 * 1024**2))
+    chunks = _chunks(path, scan.encoding, delimiter, names, skip, header_lines, chunk_rows, block)
+    return Opened(columns=names, chunks=chunks, duplicated=duplicated, expected_rows=max(scan.newlines - header_lines, 0))
+
+
+def _arrow_codec(codec: str) -> str:
+    # pyarrow decodes UTF-8 natively (and drops a UTF-8 BOM); other codecs go through Python's.
+    return "utf8" if codec in ("utf-8", "utf-8-sig") else codec
+
+
+def _unclosed_quote(chunk: Chunk, delimiter: str, width: int) -> Chunk:
+    """Flag the last record if its last field swallowed lines that look like records."""
+    frame = chunk.frame
+    if not len(frame) or width < 2:
+        return chunk
+    text = frame.iloc[-1, -1]
+    for position in range(frame.shape[1] - 1, -1, -1):
+        if frame.iloc[-1, position]:
+            text = frame.iloc[-1, position]
+            break
+    lines = str(text).splitlines()[1:]
+    if any(line.count(delimiter) >= width - 1 for line in lines):
+        number = int(chunk.rows[-1])
+        chunk.problems.append(RowProblem(
+            number, "flagged", "unclosed_quote",
+            f"record {number}: a quoted field seems never to close — its text runs to the end of the file and holds "
+            f"{len(lines):,} more lines that look like records; fix the quotes near record {number} and read again",
+            len(frame) - 1,
+        ))
+    return chunk
+
+
+def _chunks(
+    path: Path, codec: str, delimiter: str, names: list[str], skip: int, header_lines: int, chunk_rows: int, block: int
+) -> Iterator[Chunk]:
+    import pyarrow as pa
+    import pyarrow.csv as pacsv
+
+    ragged: list[str] = []
+
+    def invalid(row: pacsv.InvalidRow) -> str:
+        if not (row.text or "").strip():
+            return "skip"  # a whitespace-only line, which is no record
+        ragged.append(row.text or "")
+        return "error"
+
+    def fail(exc: Exception) -> InputError:
+        return InputError(f"{path} cannot be parsed as delimited text ({exc}); check the delimiter and quotes")
+
+    try:
+        reader = pacsv.open_csv(
+            path,
+            read_options=pacsv.ReadOptions(
+                column_names=names, skip_rows=header_lines, encoding=_arrow_codec(codec), block_size=block
+            ),
+            parse_options=pacsv.ParseOptions(
+                delimiter=delimiter, quote_char='"', double_quote=True, escape_char=False,
+                newlines_in_values=True, ignore_empty_lines=True, invalid_row_handler=invalid,
+            ),
+            convert_options=pacsv.ConvertOptions(
+                column_types={name: pa.large_string() for name in names},
+                strings_can_be_null=False, quoted_strings_can_be_null=False,
+            ),
+        )
+    except pa.ArrowInvalid as exc:  # the first block is parsed on opening
+        if not ragged:
+            raise fail(exc) from None
+        yield from _tolerant_chunks(path, codec, delimiter, names, skip, chunk_rows, 0)
+        return
+    done = 0
+    pending: Chunk | None = None
+    switched = False
+    try:
+        while True:
+            try:
+                batch = reader.read_next_batch()
+            except StopIteration:
+                break
+            except pa.ArrowInvalid as exc:
+                if ragged:
+                    switched = True
+                    break
+                raise fail(exc) from None
+            if not batch.num_rows:
+                continue
+            frame = pd.DataFrame({name: batch.column(i).to_pandas() for i, name in enumerate(names)})
+            rows = np.arange(done + 1, done + batch.num_rows + 1, dtype=np.int64)
+            done += batch.num_rows
+            if pending is not None:
+                yield pending
+            pending = Chunk(frame, rows)
+    finally:
+        reader.close()
+    if not switched:
+        if pending is not None:
+            yield _unclosed_quote(pending, delimiter, len(names))
+        return
+    if pending is not None:
+        yield pending
+    yield from _tolerant_chunks(path, codec, delimiter, names, skip, chunk_rows, done)
+
+
+def _tolerant_chunks(
+    path: Path, codec: str, delimiter: str, names: list[str], skip: int, chunk_rows: int, start: int
+) -> Iterator[Chunk]:
+    """Read records ``start + 1 ...`` with the csv module, fitting each to the header width."""
+    # Survey answers can exceed the csv module's default 128 KiB field limit;
+    # over-long cells are truncated later, with a ledger note.
+    csv.field_size_limit(max(csv.field_size_limit(), 2**31 - 1))
+    width = len(names)
+    with path.open(encoding=codec, newline="") as handle:
+        # strict=False reads quotes exactly as pyarrow does, so record counts agree
+        reader = csv.reader(handle, delimiter=delimiter, quotechar='"', doublequote=True, strict=False)
+        # blank and whitespace-only lines are no records (for one column, only blank ones: pyarrow keeps the rest)
+        records = (r for r in reader if r and not (width > 1 and len(r) == 1 and not r[0].strip()))
+        number = start
+        batch: list[list[str]] = []
+        rows: list[int] = []
+        problems: list[RowProblem] = []
+        pending: Chunk | None = None
+        for record in itertools.islice(records, skip + 1 + start, None):
+            number += 1
+            if len(record) < width:
+                record.extend([""] * (width - len(record)))
+            elif len(record) > width:
+                extra = record[width:]
+                del record[width:]
+                if any(field.strip() for field in extra):
+                    shown = delimiter.join(extra)
+                    shown = shown if len(shown) <= 80 else shown[:77] + "..."
+                    problems.append(RowProblem(
+                        number, "flagged", "ragged_row",
+                        f"record {number} has {width + len(extra)} fields but the header has {width}; "
+                        f"kept the first {width}, dropped {shown!r}",
+                        len(batch),
+                    ))
+            batch.append(record)
+            rows.append(number)
+            if len(batch) >= chunk_rows:
+                if pending is not None:
+                    yield pending
+                pending = Chunk(string_frame(batch, names), np.asarray(rows, dtype=np.int64), problems)
+                batch, rows, problems = [], [], []
+        if batch:
+            if pending is not None:
+                yield pending
+            pending = Chunk(string_frame(batch, names), np.asarray(rows, dtype=np.int64), problems)
+        if pending is not None:
+            yield _unclosed_quote(pending, delimiter, width)
