@@ -91,7 +91,11 @@ def test_top_terms_uses_the_first_ranking_of_a_long_keyword_table() -> None:
         }
     )
     terms, values, column = top_terms(table, 2)
-    assert (terms, values, column) == (["b", "a"], [0.5, 0.4], "mean_weight")
+    assert (terms, values) == (["b", "a"], [0.5, 0.4])
+    assert column.startswith("mean TF-IDF weight")
+    group_table = table.rename(columns={"mean_weight": "score"}).assign(ranking=["c_tfidf"] * 3 + ["mean_tfidf"] * 3)
+    terms, values, column = top_terms(group_table, 3)
+    assert terms == ["b", "a", "c"] and column.startswith("class-based TF-IDF")
 
 
 def test_concept_matrix_from_a_long_table() -> None:

@@ -186,6 +186,20 @@ def save_figure(figure: Figure, path: Path) -> tuple[Path, list[str]]:
     return path, notes
 
 
+def save_figure_as(figure: Figure, paths: Sequence[Path]) -> list[str]:
+    """Save one figure in several formats; the layout is computed once, for the first.
+
+    Constrained layout measures every label on each save; the positions are
+    fractions of the figure, so the first save's layout holds for the others.
+    """
+    notes: list[str] = []
+    for number, path in enumerate(paths):
+        notes.extend(save_figure(figure, path)[1])
+        if number == 0:
+            figure.set_layout_engine("none")
+    return notes
+
+
 # --------------------------------------------------------------------------- choosing what to draw
 
 #: Columns tried, in order, as the bar length of a keyword chart.
@@ -203,6 +217,13 @@ _SCORE_COLUMNS: tuple[str, ...] = (
     "frequency",
 )
 _TERM_COLUMNS: tuple[str, ...] = ("term", "lemma", "concept", "keyword")
+#: Axis titles for the rankings the weigh and compare stages write.
+AXIS_TITLES: dict[str, str] = {
+    "mean_weight": "mean TF-IDF weight over the answers (respondent-weighted)",
+    "doc_share": "share of answers containing the term",
+    "c_tfidf": "class-based TF-IDF (the group's answers as one document)",
+    "mean_tfidf": "mean TF-IDF weight over the group's answers",
+}
 
 
 def chart_columns(frame: pd.DataFrame) -> tuple[str, str] | None:
@@ -217,7 +238,7 @@ def chart_columns(frame: pd.DataFrame) -> tuple[str, str] | None:
 
 
 def top_terms(frame: pd.DataFrame, k: int) -> tuple[list[str], list[float], str] | None:
-    """The ``k`` highest-scoring labels of a keyword table, highest first.
+    """The ``k`` highest-scoring labels of a keyword table, highest first, and an axis label.
 
     Long tables with a ``ranking`` column (one block of rows per ranking, the
     score in the column of the same name) chart their first ranking.
@@ -229,26 +250,36 @@ def top_terms(frame: pd.DataFrame, k: int) -> tuple[list[str], list[float], str]
             columns: tuple[str, str] | None = ("term", first)
         else:
             columns = chart_columns(frame)
+        axis = AXIS_TITLES.get(first, first)
     else:
         columns = chart_columns(frame)
+        axis = AXIS_TITLES.get(columns[1], columns[1]) if columns else ""
     if columns is None:
         return None
     label, value = columns
     data = frame[[label, value]].dropna()
     data = data[np.isfinite(data[value].astype(float))]
     data = data.sort_values(value, ascending=False, kind="stable").head(k)
-    return [str(t) for t in data[label]], [float(v) for v in data[value]], value
+    return [str(t) for t in data[label]], [float(v) for v in data[value]], axis
 
 
 def concept_matrix(tables: dict[str, pd.DataFrame]) -> tuple[str, pd.DataFrame] | None:
-    """A concepts-by-languages table: index concept, one numeric column per language."""
+    """A concepts-by-languages table for :func:`concept_chart`: index concept, one column per language.
+
+    Reads the first table whose name starts with ``concept`` and that has a
+    ``concept`` column: wide ``share_<lang>`` columns (the compare stage's
+    ``concepts_by_language``) or long ``language`` + ``share`` columns.
+    Returns the axis label and the table, or ``None``.
+    """
     for name, frame in tables.items():
         if not name.lower().startswith("concept") or "concept" not in frame.columns:
             continue
+        shares = [c for c in frame.columns if str(c).startswith("share_")]
+        if shares:
+            wide = frame.set_index("concept")[shares].astype(float)
+            wide.columns = [str(c).removeprefix("share_") for c in shares]
+            return "share of respondents mentioning", wide
         if {"language", "share"}.issubset(frame.columns):
             wide = frame.pivot_table(index="concept", columns="language", values="share", aggfunc="sum", sort=False)
-            return "share of answers", wide
-        numeric = [c for c in frame.columns if c != "concept" and pd.api.types.is_numeric_dtype(frame[c].dtype)]
-        if numeric:
-            return "value", frame.set_index("concept")[numeric]
+            return "share of respondents mentioning", wide
     return None

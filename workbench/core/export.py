@@ -18,14 +18,17 @@ that did not run writes nothing)::
       <lang>.weights.mtx  <lang>.counts.mtx  <lang>.weights.npz  <lang>.counts.npz
       <lang>.parquet              long form: row_id, term, weight, count
       <lang>.dense.csv            only with export.dense_csv, under export.dense_limit
+    terms/
+      vocabulary__<lang>.csv/.json, stop_words_removed__<lang>.csv/.json, terms.xlsx
     keywords/
-      <name>.csv  <name>.json     top keywords per language (weigh stage)
-      keywords.xlsx               one sheet per table
+      <lang>.csv  <lang>.json     top keywords per language and pooled (weigh stage)
+      keywords.xlsx               a "contents" sheet, then one sheet per table
     compare/
       <name>.csv  <name>.json     keyness, group keywords, concepts, stability, KWIC...
-      compare.xlsx                one sheet per table
+      compare.xlsx                a "contents" sheet (full names, descriptions), one sheet per table
     charts/
-      keywords-<name>.png/.svg    top keywords per language and per group
+      keywords-<lang>.png/.svg    top keywords per language and pooled
+      keywords-<grouping>-<group>-<unit>.png/.svg   top keywords of each group
       concepts.png/.svg           concepts across languages (with a glossary)
 
 File names made from table names, languages or group values are sanitised by
@@ -60,7 +63,7 @@ import scipy.sparse as sp
 
 from workbench.core import corpus as C
 from workbench.core.atomic import TEMP_PREFIX, atomic_path, describe_os_error, remove_stale_temps
-from workbench.core.charts import concept_chart, concept_matrix, keyword_chart, save_figure, top_terms
+from workbench.core.charts import concept_chart, concept_matrix, keyword_chart, save_figure_as, top_terms
 from workbench.core.errors import InputError, OutputError
 from workbench.core.manifest import MANIFEST_NAME, read_manifest, run_content, write_manifest
 from workbench.core.matrices import check_dense, write_dense_csv, write_lines, write_long_parquet, write_mtx, write_npz
@@ -109,14 +112,15 @@ def safe_name(text: object, used: set[str] | None = None, max_bytes: int = _NAME
 
     Letters and digits of any script are kept (after Unicode NFC); every other
     character (path separators, spaces, colons, control characters...) becomes
-    ``-``; runs of dots collapse so no ``..`` remains; leading/trailing dots and
-    dashes go; Windows device names get a ``_``; the result is cut to
+    ``-``; runs of dots and dashes collapse to one ``-`` so no ``..`` remains;
+    leading/trailing dots and dashes go; Windows device names get a ``_``; the result is cut to
     ``max_bytes`` bytes of UTF-8. ``used`` holds case-folded names already
     taken; a clash gets ``-2``, ``-3``... and the new name is added to it.
     """
     name = unicodedata.normalize("NFC", str(text))
     name = "".join(ch if ch.isalnum() or ch in "._+-" else "-" for ch in name)
-    name = re.sub(r"-{2,}", "-", re.sub(r"\.{2,}", ".", name)).strip("-._") or "x"
+    # Any run of dots and dashes holding a dash, and any run of 2+ dots, becomes one dash: no "..".
+    name = re.sub(r"[-.]*-[-.]*|\.{2,}", "-", name).strip("-._") or "x"
     if name.split(".")[0].lower() in _WINDOWS_RESERVED:
         name += "_"
     name = _cut_bytes(name, max_bytes)
@@ -250,9 +254,11 @@ def write_run(out_dir: Path, run: RunOutputs, reporter: Reporter) -> list[Path]:
         sink.step("respondents")
         _write_matrices(sink, run)
         sink.step("matrices")
+        _write_table_group(sink, "terms", _term_tables(run))
         _write_table_group(sink, "keywords", _keyword_tables(run))
-        sink.step("keywords")
-        _write_table_group(sink, "compare", _compare_tables(run))
+        sink.step("terms and keywords")
+        table_notes = getattr(run.compared, "table_notes", None) if run.compared is not None else None
+        _write_table_group(sink, "compare", _compare_tables(run), dict(table_notes or {}))
         sink.step("compare tables")
         _write_charts(sink, run)
         sink.step("charts")
@@ -554,7 +560,31 @@ def _compare_tables(run: RunOutputs) -> dict[str, pd.DataFrame]:
     return {str(k): v for k, v in (tables or {}).items() if isinstance(v, pd.DataFrame)}
 
 
-def _write_table_group(sink: _Sink, folder: str, tables: dict[str, pd.DataFrame]) -> None:
+def _term_tables(run: RunOutputs) -> dict[str, pd.DataFrame]:
+    """Each language's vocabulary and removed stop words, from the terms stage."""
+    terms = run.terms
+    if terms is None:
+        return {}
+    out: dict[str, pd.DataFrame] = {}
+    for attribute in ("vocabularies", "stop_hits"):
+        label = "vocabulary" if attribute == "vocabularies" else "stop_words_removed"
+        for language, frame in sorted((getattr(terms, attribute, None) or {}).items()):
+            if isinstance(frame, pd.DataFrame):
+                out[f"{label}__{language}"] = frame
+    return out
+
+
+_DESCRIPTIONS = {
+    "keywords": "top terms of the language (or all languages pooled), one block of rows per ranking "
+    "(mean_weight: respondent-weighted mean TF-IDF; doc_share: weighted share of answers containing the term)",
+    "vocabulary": "every term of the language after stop-word removal: total count (tf), answers holding it (df)",
+    "stop_words_removed": "stop words removed from the language's answers, with their counts",
+}
+
+
+def _write_table_group(
+    sink: _Sink, folder: str, tables: dict[str, pd.DataFrame], descriptions: dict[str, str] | None = None
+) -> None:
     if not tables:
         return
     used: set[str] = set()
@@ -566,14 +596,39 @@ def _write_table_group(sink: _Sink, folder: str, tables: dict[str, pd.DataFrame]
         if sink.wants("json"):
             sink.add(write_json_table(sink.path(folder, f"{stem}.json"), frame))
     if sink.wants("xlsx"):
-        path, notes = write_xlsx(sink.path(folder, f"{folder}.xlsx"), tables)
+        if descriptions is None:
+            descriptions = {name: _DESCRIPTIONS.get(name.split("__")[0], _DESCRIPTIONS.get(folder, "")) for name in tables}
+        path, notes = write_xlsx(sink.path(folder, f"{folder}.xlsx"), tables, descriptions=descriptions)
         sink.add(path, notes)
 
 
 # --------------------------------------------------------------------------- charts
 
-def _group_keyword_tables(tables: dict[str, pd.DataFrame]) -> dict[str, pd.DataFrame]:
-    return {name: frame for name, frame in tables.items() if name.lower().startswith(("keywords", "top"))}
+#: Above this many per-group charts only the pooled unit's are drawn (the tables keep everything).
+MAX_GROUP_CHARTS = 60
+
+
+def _group_charts(tables: dict[str, pd.DataFrame], top_k: int, notes: list[str]) -> list[tuple[str, Any]]:
+    """One bar chart per group of every ``group_keywords__*`` table (its first ranking)."""
+    found = []
+    for name, frame in tables.items():
+        if not name.startswith("group_keywords") or "group" not in frame.columns:
+            continue
+        grouping = str(frame["grouping"].iloc[0]) if "grouping" in frame.columns and len(frame) else name
+        unit = str(frame["unit"].iloc[0]) if "unit" in frame.columns and len(frame) else ""
+        for group, part in frame.groupby(frame["group"].astype(str), sort=True):
+            top = top_terms(part, top_k)
+            if top is not None and top[0]:
+                title = f"Top keywords — {grouping} = {group}" + (f" ({unit})" if unit else "")
+                found.append((unit, f"keywords-{grouping}-{group}-{unit}", top, title))
+    if len(found) > MAX_GROUP_CHARTS:
+        kept = [f for f in found if f[0] == POOLED]
+        notes.append(
+            f"{len(found)} group keyword charts would be drawn; only the {len(kept)} of the pooled corpus "
+            "were (the group_keywords tables hold every group and language)"
+        )
+        found = kept
+    return [(stem, _bar(top, title)) for _unit, stem, top, title in found]
 
 
 def _write_charts(sink: _Sink, run: RunOutputs) -> None:
@@ -587,11 +642,9 @@ def _write_charts(sink: _Sink, run: RunOutputs) -> None:
         top = top_terms(frame, top_k)
         if top is not None:
             charts.append((f"keywords-{name}", _bar(top, f"Top keywords — {name}")))
-    for name, frame in _group_keyword_tables(_compare_tables(run)).items():
-        top = top_terms(frame, top_k)
-        if top is not None:
-            charts.append((f"keywords-{name}", _bar(top, f"Top keywords — {name}")))
-    concepts = concept_matrix(_compare_tables(run))
+    compare_tables = _compare_tables(run)
+    charts.extend(_group_charts(compare_tables, top_k, sink.notes))
+    concepts = concept_matrix(compare_tables)
     if concepts is not None:
         xlabel, wide = concepts
         charts.append(("concepts", lambda: concept_chart(wide.head(top_k), "Concepts across languages", xlabel)))
@@ -599,9 +652,11 @@ def _write_charts(sink: _Sink, run: RunOutputs) -> None:
         sink.reporter.check(STAGE)
         figure = make()
         name = safe_name(stem, used)
-        for kind in kinds:
-            path, notes = save_figure(figure, sink.path("charts", f"{name}.{kind}"))
-            sink.add(path, notes)
+        paths = [sink.path("charts", f"{name}.{kind}") for kind in kinds]
+        notes = save_figure_as(figure, paths)
+        for path in paths:
+            sink.add(path)
+        sink.notes.extend(notes)
 
 
 def _bar(top: tuple[list[str], list[float], str], title: str) -> Callable[[], Any]:

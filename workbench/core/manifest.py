@@ -229,11 +229,13 @@ def _stage_summaries(run: RunOutputs) -> dict[str, Any]:
     if terms is not None:
         vocab = getattr(terms, "vocabularies", None) or {}
         summary["terms"] = {
-            "vocabulary_sizes": {str(k): int(len(v)) for k, v in vocab.items()},
-            "overrides_applied": to_jsonable(getattr(terms, "overrides_applied", None)),
+            "vocabulary_sizes": {str(k): int(len(v)) for k, v in sorted(vocab.items())},
             "stop_words": {
-                str(k): int(len(v)) for k, v in (getattr(terms, "stop_words", None) or {}).items() if hasattr(v, "__len__")
+                str(k): int(len(v)) for k, v in sorted((getattr(terms, "stop_words", None) or {}).items())
             },
+            "overrides_applied": to_jsonable(getattr(terms, "overrides_applied", None)),
+            "backends": to_jsonable(getattr(terms, "backends", None)),
+            "notes": to_jsonable(list(getattr(terms, "notes", None) or [])),
         }
     weighed = run.weighed
     if weighed is not None:
@@ -252,9 +254,16 @@ def _stage_summaries(run: RunOutputs) -> dict[str, Any]:
         }
     compared = run.compared
     if compared is not None:
+        tables = getattr(compared, "tables", None) or {}
+        descriptions = getattr(compared, "table_notes", None) or {}
         summary["compare"] = {
-            "tables": {name: int(len(frame)) for name, frame in (getattr(compared, "tables", None) or {}).items()},
+            "tables": {
+                str(name): {"rows": int(len(frame)), "description": descriptions.get(name, "")}
+                for name, frame in tables.items()
+            },
+            "findings": to_jsonable(list(getattr(compared, "findings", None) or [])),
             "notes": to_jsonable(list(getattr(compared, "notes", None) or [])),
+            "warnings": to_jsonable(list(getattr(compared, "warnings", None) or [])),
         }
     return summary
 

@@ -235,6 +235,7 @@ def write_xlsx(
     path: Path,
     tables: Mapping[str, pd.DataFrame],
     max_rows: int = EXCEL_MAX_ROWS,
+    descriptions: Mapping[str, str] | None = None,
 ) -> tuple[Path, list[str]]:
     """Write one workbook with one sheet per table; returns the path and notes.
 
@@ -244,13 +245,33 @@ def write_xlsx(
     numbers as numbers, NaN as an empty cell, infinities as the text ``inf`` /
     ``−inf``. ``max_rows`` counts the header; tables longer than a sheet
     continue on further sheets.
+
+    With ``descriptions`` (table name -> a sentence), a first sheet
+    ``contents`` lists every table: its first sheet, full name, rows and
+    description (sheet names are cut to 31 characters; the full names are here).
     """
     import xlsxwriter
 
     if max_rows < 2:
         raise ValueError("max_rows must leave room for a header and one row")
-    notes: list[str] = []
-    used: set[str] = set()
+    for name, frame in tables.items():
+        if frame.shape[1] > EXCEL_MAX_COLUMNS:
+            raise OutputError(
+                f"table '{name}' has {frame.shape[1]:,} columns; a spreadsheet sheet holds "
+                f"{EXCEL_MAX_COLUMNS:,}; drop 'xlsx' from export.formats or use the CSV/Parquet output"
+            )
+    used: set[str] = {"contents"} if descriptions is not None else set()
+    per_sheet = max_rows - 1
+    layout = {}
+    for name, frame in tables.items():
+        chunks = max(1, math.ceil(len(frame) / per_sheet))
+        layout[name] = [sheet_name(name if k == 0 else f"{name} ({k + 1})", used) for k in range(chunks)]
+    notes: list[str] = [
+        f"table '{name}' has {len(tables[name]):,} rows; a sheet holds {per_sheet:,} below its header, "
+        f"so it continues on {len(sheets)} sheets"
+        for name, sheets in layout.items()
+        if len(sheets) > 1
+    ]
     with atomic_path(path) as tmp:
         workbook = xlsxwriter.Workbook(
             str(tmp),
@@ -266,33 +287,32 @@ def write_xlsx(
         workbook.set_properties({"created": _dt.datetime(2000, 1, 1)})
         bold = workbook.add_format({"bold": True})
         try:
+            if descriptions is not None:
+                contents = pd.DataFrame(
+                    {
+                        "sheet": [sheets[0] for sheets in layout.values()],
+                        "table": list(tables),
+                        "rows": [len(frame) for frame in tables.values()],
+                        "description": [descriptions.get(name, "") for name in tables],
+                    }
+                )
+                notes.extend(_write_sheets(workbook, bold, "contents", contents, ["contents"], per_sheet))
             for name, frame in tables.items():
-                if frame.shape[1] > EXCEL_MAX_COLUMNS:
-                    raise OutputError(
-                        f"table '{name}' has {frame.shape[1]:,} columns; a spreadsheet sheet holds "
-                        f"{EXCEL_MAX_COLUMNS:,}; drop 'xlsx' from export.formats or use the CSV/Parquet output"
-                    )
-                notes.extend(_write_sheets(workbook, bold, name, frame, used, max_rows))
+                notes.extend(_write_sheets(workbook, bold, name, frame, layout[name], per_sheet))
         finally:
             workbook.close()
     return path, notes
 
 
-def _write_sheets(workbook: Any, bold: Any, name: str, frame: pd.DataFrame, used: set[str], max_rows: int) -> list[str]:
-    notes: list[str] = []
+def _write_sheets(
+    workbook: Any, bold: Any, name: str, frame: pd.DataFrame, sheets: list[str], per_sheet: int
+) -> list[str]:
     safe = spreadsheet_frame(frame)
     headers = [str(c) for c in safe.columns]
-    per_sheet = max_rows - 1
-    chunks = max(1, math.ceil(len(safe) / per_sheet))
-    if chunks > 1:
-        notes.append(
-            f"table '{name}' has {len(safe):,} rows; a sheet holds {per_sheet:,} below its header, "
-            f"so it continues on {chunks} sheets"
-        )
     cut = 0
-    for chunk in range(chunks):
+    for chunk, title in enumerate(sheets):
         part = safe.iloc[chunk * per_sheet : (chunk + 1) * per_sheet]
-        sheet = workbook.add_worksheet(sheet_name(name if chunk == 0 else f"{name} ({chunk + 1})", used))
+        sheet = workbook.add_worksheet(title)
         for col, header in enumerate(headers):
             sheet.set_column(col, col, _width(part.iloc[:200, col].tolist(), header))
         for col, header in enumerate(headers):
@@ -304,11 +324,11 @@ def _write_sheets(workbook: Any, bold: Any, name: str, frame: pd.DataFrame, used
         if headers:
             sheet.autofilter(0, 0, max(len(part), 1), len(headers) - 1)
     if cut:
-        notes.append(
+        return [
             f"table '{name}': {cut} cell(s) longer than {EXCEL_MAX_CELL_CHARS:,} characters were cut in the "
             "XLSX file; the CSV, JSON and Parquet outputs keep the full text"
-        )
-    return notes
+        ]
+    return []
 
 
 def _write_cell(sheet: Any, row: int, col: int, value: Any) -> int:
