@@ -321,12 +321,28 @@ def test_cell_over_one_megabyte_is_truncated_and_flagged(tmp_path):
     assert any("2 cells over 1,000,000 characters were truncated" in n for n in corpus.reports[0].notes)
 
 
+def test_record_longer_than_a_parser_block_switches_parser_without_loss(tmp_path, monkeypatch):
+    """pyarrow's streaming reader cannot parse a record longer than its block; reading goes on with
+    the csv module from the next unread record."""
+    from workbench.core.readers import delimited
+
+    monkeypatch.setattr(delimited, "MIN_BLOCK", 512)
+    lines = ["id,q"] + [f"{i},short {i}" for i in range(1, 30)]
+    lines[20] = f'20,"{"long text, " * 600}"'
+    (tmp_path / "l.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
+    corpus, ledger = run(make_study(tmp_path, "l.csv", id="id", text=["q"]), chunk_rows=3)
+    assert corpus.respondents[RESPONDENT_ID].tolist() == [str(i) for i in range(1, 30)]
+    assert corpus.answers[RAW_TEXT].str.len().tolist()[19] == len("long text, " * 600)
+    assert_accounted(corpus, ledger)
+
+
 def test_unclosed_quote_is_flagged(tmp_path):
     (tmp_path / "q.csv").write_text('id,q,g\n1,fine,a\n2,"oops,b\n3,lost,c\n4,lost too,d\n', encoding="utf-8")
     corpus, ledger = run(make_study(tmp_path, "q.csv", id="id", text=["q"]))
     flagged = events(ledger, "row", "unclosed_quote")
     assert flagged.key.tolist() == ["2"]
     assert "never to close" in flagged.message.iloc[0]
+    assert any(n.startswith("warning: the last record's text runs to the end") for n in corpus.reports[0].notes)
 
 
 # --------------------------------------------------------------------------- sources, progress

@@ -236,12 +236,15 @@ def _chunk_into(parts: _Parts, chunk: Chunk, roles: Roles, label: str, multi: bo
     start = parts.count
     for problem in chunk.problems:
         tally[problem.code] += 1
-        if problem.index is None:
+        if problem.index is not None:
+            parts.flags.append((start + problem.index, problem.code, problem.message))
+        elif problem.status == "dropped":
+            report.rows += 1
             parts.dropped.append(("row", f"{label}:{problem.row}", label, int(problem.row), STAGE,
                                   problem.status, problem.code, problem.message))
         else:
-            parts.flags.append((start + problem.index, problem.code, problem.message))
-    report.rows += n + sum(1 for p in chunk.problems if p.index is None)
+            parts.flags.append((_delivered(parts, label, problem.row), problem.code, problem.message))
+    report.rows += n
     if n == 0:
         return
     for _key, name in roles.named():
@@ -348,6 +351,20 @@ def _chunk_into(parts: _Parts, chunk: Chunk, roles: Roles, label: str, multi: bo
     parts.weights.append(weight)
     parts.hints.append(hint)
     parts.count += n
+
+
+def _delivered(parts: _Parts, label: str, row: int) -> int:
+    """Position of a record of ``label`` already taken in (a reader's late finding about it)."""
+    code = parts.labels.index(label)
+    end = parts.count
+    for chunk in range(len(parts.rows) - 1, -1, -1):
+        rows = parts.rows[chunk]
+        end -= len(rows)
+        if parts.label_of_chunk[chunk] == code:
+            found = np.flatnonzero(rows == row)
+            if found.size:
+                return end + int(found[0])
+    raise AssertionError(f"reader referred to record {row} of {label}, which was never delivered")
 
 
 def _unique_ids(ids: pd.Series, sources: np.ndarray, rows: np.ndarray) -> tuple[pd.Series, list[tuple[int, str, str]]]:
@@ -471,6 +488,7 @@ _NOTES = {
     "undecodable": "{n:,} files could not be decoded and were skipped (ledger code undecodable)",
     "unreadable": "{n:,} files could not be read and were skipped (ledger code unreadable)",
     "cell_truncated": "{n:,} cells over {limit:,} characters were truncated (ledger code cell_truncated)",
+    "unclosed_quote": "warning: the last record's text runs to the end of the file; a quoted field probably never closes (ledger code unclosed_quote)",
     "empty_cells": "{n:,} empty text cells (not answers)",
     "decimal_comma": "{n:,} weights written with a decimal comma were read as decimals",
 }
@@ -500,16 +518,18 @@ def _read_one(
             reporter.update(STAGE, done_before + report.rows, done_before + total, f"{label}: {report.rows:,} records read")
     finally:
         opened.chunks.close()  # type: ignore[attr-defined]
+    if parts.count == kept_before:
+        if report.rows:
+            raise InputError(
+                f"{path}: none of its {report.rows:,} records could be read (first problem: {parts.dropped[dropped_before][7]})"
+            )
+        if fmt == "jsonl":
+            raise InputError(f"{path} holds no JSON objects, only blank lines; export the answers again")
+        where = f"sheet '{report.sheet}' of {path}" if report.sheet else str(path)
+        raise InputError(f"{where} has a header row but no data rows; export the answers with the header")
     if opened.columns is None:
         report.columns = list(seen)
         check_columns(roles, report.columns, {}, path)
-    if parts.count == kept_before:
-        if report.rows == 0:
-            where = f"sheet '{report.sheet}' of {path}" if report.sheet else str(path)
-            raise InputError(f"{where} has a header row but no data rows; export the answers with the header")
-        raise InputError(
-            f"{path}: none of its {report.rows:,} records could be read (first problem: {parts.dropped[dropped_before][7]})"
-        )
     for code, count in tally.items():
         if code in _NOTES and count:
             report.notes.append(_NOTES[code].format(n=count, limit=MAX_CELL_CHARS))

@@ -46,7 +46,13 @@ from workbench.core.settings import Source
 DELIMITERS = ",;\t|"
 #: Characters of decoded text used to sniff the delimiter and read the header.
 SAMPLE_CHARS = 256 * 1024
+#: Smallest pyarrow block (bytes). A record longer than a block cannot be parsed
+#: by pyarrow's streaming reader; such files continue with the csv module.
+MIN_BLOCK = 4 * 1024**2
 _SEP_LINE = re.compile(r"^sep=([,;\t|])\r?\n")
+
+
+_STRADDLE = "straddl"  # pyarrow: "straddling object straddles two block boundaries"
 
 
 def _shown(delimiter: str) -> str:
@@ -139,7 +145,7 @@ def open_delimited(
     # pyarrow batches by bytes: size blocks so a batch holds about chunk_rows records
     records_in_sample = max(len(_records(sample, delimiter, limit=1_000_000)), 1)
     per_record = max(len(sample.encode("utf-8", "replace")) // records_in_sample, 16)
-    block = int(min(max(chunk_rows * per_record, 4096), 64 * 1024**2))
+    block = int(min(max(chunk_rows * per_record, MIN_BLOCK), 64 * 1024**2))
     chunks = _chunks(path, scan.encoding, delimiter, names, skip, header_lines, chunk_rows, block)
     return Opened(columns=names, chunks=chunks, duplicated=duplicated, expected_rows=max(scan.newlines - header_lines, 0))
 
@@ -149,29 +155,37 @@ def _arrow_codec(codec: str) -> str:
     return "utf8" if codec in ("utf-8", "utf-8-sig") else codec
 
 
-def _unclosed_quote(chunk: Chunk, delimiter: str, width: int) -> Chunk:
-    """Flag the last record if its last field swallowed lines that look like records."""
-    frame = chunk.frame
+def _unclosed_quote(last: Chunk, delimiter: str, width: int) -> RowProblem | None:
+    """A problem for the file's last record if its last field swallowed lines that look like records."""
+    frame = last.frame
     if not len(frame) or width < 2:
-        return chunk
-    text = frame.iloc[-1, -1]
-    for position in range(frame.shape[1] - 1, -1, -1):
-        if frame.iloc[-1, position]:
-            text = frame.iloc[-1, position]
-            break
-    lines = str(text).splitlines()[1:]
-    if any(line.count(delimiter) >= width - 1 for line in lines):
-        number = int(chunk.rows[-1])
-        chunk.problems.append(RowProblem(
-            number, "flagged", "unclosed_quote",
-            f"record {number}: a quoted field seems never to close — its text runs to the end of the file and holds "
-            f"{len(lines):,} more lines that look like records; fix the quotes near record {number} and read again",
-            len(frame) - 1,
-        ))
-    return chunk
+        return None
+    values = [str(v) for v in frame.iloc[-1].tolist() if isinstance(v, str) and v]
+    lines = values[-1].splitlines()[1:] if values else []
+    if not any(line.count(delimiter) >= width - 1 for line in lines):
+        return None
+    number = int(last.rows[-1])
+    return RowProblem(
+        number, "flagged", "unclosed_quote",
+        f"record {number}: a quoted field seems never to close — its text runs to the end of the file and holds "
+        f"{len(lines):,} more lines that look like records; fix the quotes near record {number} and read again",
+    )
 
 
 def _chunks(
+    path: Path, codec: str, delimiter: str, names: list[str], skip: int, header_lines: int, chunk_rows: int, block: int
+) -> Iterator[Chunk]:
+    last: Chunk | None = None
+    for chunk in _arrow_then_tolerant(path, codec, delimiter, names, skip, header_lines, chunk_rows, block):
+        last = chunk
+        yield chunk
+    problem = _unclosed_quote(last, delimiter, len(names)) if last is not None else None
+    if problem:
+        # refers back to a record already delivered (index None, status flagged)
+        yield Chunk(string_frame([], names), np.empty(0, dtype=np.int64), [problem])
+
+
+def _arrow_then_tolerant(
     path: Path, codec: str, delimiter: str, names: list[str], skip: int, header_lines: int, chunk_rows: int, block: int
 ) -> Iterator[Chunk]:
     import pyarrow as pa
@@ -204,41 +218,38 @@ def _chunks(
             ),
         )
     except pa.ArrowInvalid as exc:  # the first block is parsed on opening
-        if not ragged:
+        if not (ragged or _STRADDLE in str(exc)):
             raise fail(exc) from None
         yield from _tolerant_chunks(path, codec, delimiter, names, skip, chunk_rows, 0)
         return
     done = 0
-    pending: Chunk | None = None
-    switched = False
     try:
         while True:
             try:
                 batch = reader.read_next_batch()
             except StopIteration:
-                break
+                return
             except pa.ArrowInvalid as exc:
-                if ragged:
-                    switched = True
+                if ragged or _STRADDLE in str(exc):
                     break
                 raise fail(exc) from None
-            if not batch.num_rows:
-                continue
-            frame = pd.DataFrame({name: batch.column(i).to_pandas() for i, name in enumerate(names)})
-            rows = np.arange(done + 1, done + batch.num_rows + 1, dtype=np.int64)
-            done += batch.num_rows
-            if pending is not None:
-                yield pending
-            pending = Chunk(frame, rows)
+            for offset in range(0, batch.num_rows, chunk_rows):
+                piece = batch.slice(offset, chunk_rows)
+                frame = pd.DataFrame({name: piece.column(i).to_pandas() for i, name in enumerate(names)})
+                rows = np.arange(done + 1, done + piece.num_rows + 1, dtype=np.int64)
+                done += piece.num_rows
+                yield Chunk(frame, rows)
     finally:
         reader.close()
-    if not switched:
-        if pending is not None:
-            yield _unclosed_quote(pending, delimiter, len(names))
-        return
-    if pending is not None:
-        yield pending
     yield from _tolerant_chunks(path, codec, delimiter, names, skip, chunk_rows, done)
+
+
+def _decoded(records: Iterator[list[str]], path: Path, codec: str) -> Iterator[list[str]]:
+    """Turn a decoding failure met while reading into a one-line error (full reads validate beforehand)."""
+    try:
+        yield from records
+    except UnicodeDecodeError as exc:
+        raise InputError(f"{path} is not valid {codec} ({exc.reason}); set sources.encoding to the file's encoding") from None
 
 
 def _tolerant_chunks(
@@ -258,8 +269,7 @@ def _tolerant_chunks(
         batch: list[list[str]] = []
         rows: list[int] = []
         problems: list[RowProblem] = []
-        pending: Chunk | None = None
-        for record in itertools.islice(records, skip + 1 + start, None):
+        for record in _decoded(itertools.islice(records, skip + 1 + start, None), path, codec):
             number += 1
             if len(record) < width:
                 record.extend([""] * (width - len(record)))
@@ -278,13 +288,7 @@ def _tolerant_chunks(
             batch.append(record)
             rows.append(number)
             if len(batch) >= chunk_rows:
-                if pending is not None:
-                    yield pending
-                pending = Chunk(string_frame(batch, names), np.asarray(rows, dtype=np.int64), problems)
+                yield Chunk(string_frame(batch, names), np.asarray(rows, dtype=np.int64), problems)
                 batch, rows, problems = [], [], []
         if batch:
-            if pending is not None:
-                yield pending
-            pending = Chunk(string_frame(batch, names), np.asarray(rows, dtype=np.int64), problems)
-        if pending is not None:
-            yield _unclosed_quote(pending, delimiter, width)
+            yield Chunk(string_frame(batch, names), np.asarray(rows, dtype=np.int64), problems)
