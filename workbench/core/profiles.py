@@ -4,7 +4,10 @@ Files in a profile folder (all optional but ``profile.toml``; formats are
 described in ``lang_profiles/README.md``):
 
 ``profile.toml``          ``name``, ``lemmatizer`` (``spacy-lookup`` /
-                          ``simplemma`` / ``none``), optional ``spacy_code``
+                          ``simplemma`` / ``none``), optional ``spacy_code``,
+                          ``lookup_tables`` (spacy-lookups-data tables, merged
+                          in order) and ``lemma_fallback`` (``simplemma`` /
+                          ``none``, for forms the table lacks)
 ``stop_add.txt``          stop words added to spaCy's list
 ``stop_remove.txt``       words removed from spaCy's list (negations, intensifiers)
 ``non_answers.txt``       phrases that mean "no answer" in this language
@@ -23,9 +26,11 @@ from importlib import resources
 from pathlib import Path
 from typing import Literal
 
-from workbench.core.errors import SettingsError
+from workbench.core.errors import SettingsError, did_you_mean
 
 Lemmatizer = Literal["spacy-lookup", "simplemma", "none"]
+#: Keys ``profile.toml`` may hold; anything else is a typo worth reporting.
+PROFILE_KEYS = ("name", "lemmatizer", "spacy_code", "lookup_tables", "lemma_fallback")
 
 
 @dataclass(frozen=True)
@@ -39,6 +44,10 @@ class LanguageProfile:
     non_answers: tuple[str, ...] = ()
     connectors: frozenset[str] = field(default_factory=frozenset)
     lemma_overrides: dict[str, str] = field(default_factory=dict)
+    lookup_tables: tuple[str, ...] = ("lemma_lookup",)
+    lemma_fallback: Literal["simplemma", "none"] = "none"
+    #: The folder the profile was read from (for messages).
+    folder: Path | None = field(default=None, compare=False)
 
 
 def profiles_root() -> Path:
@@ -92,6 +101,12 @@ def _load(code: str, root: Path) -> LanguageProfile:
             "add a profile folder as described in lang_profiles/README.md"
         )
     meta = _read_toml(meta_path)
+    for key in meta:
+        if key not in PROFILE_KEYS:
+            raise SettingsError(
+                f"{meta_path}: unknown key '{key}'{did_you_mean(key, PROFILE_KEYS)}; "
+                f"valid keys: {', '.join(PROFILE_KEYS)}"
+            )
     lemmatizer = meta.get("lemmatizer", "none")
     if lemmatizer not in ("spacy-lookup", "simplemma", "none"):
         raise SettingsError(
@@ -99,8 +114,14 @@ def _load(code: str, root: Path) -> LanguageProfile:
         )
     overrides_path = folder / "lemma_overrides.toml"
     overrides = _read_toml(overrides_path).get("overrides", {}) if overrides_path.is_file() else {}
-    if not all(isinstance(v, str) for v in overrides.values()):
+    if not isinstance(overrides, dict) or not all(isinstance(v, str) for v in overrides.values()):
         raise SettingsError(f"{overrides_path}: every override must map a form to a string lemma")
+    tables = meta.get("lookup_tables", ["lemma_lookup"])
+    if not isinstance(tables, list) or not tables or not all(isinstance(t, str) and t for t in tables):
+        raise SettingsError(f"{meta_path}: lookup_tables must be a non-empty list of table names, e.g. [\"lemma_lookup\"]")
+    fallback = meta.get("lemma_fallback", "none")
+    if fallback not in ("simplemma", "none"):
+        raise SettingsError(f"{meta_path}: lemma_fallback = '{fallback}' is not one of simplemma, none")
     return LanguageProfile(
         code=code,
         name=str(meta.get("name", code)),
@@ -111,6 +132,9 @@ def _load(code: str, root: Path) -> LanguageProfile:
         non_answers=tuple(read_word_list(folder / "non_answers.txt")),
         connectors=frozenset(read_word_list(folder / "connectors.txt")),
         lemma_overrides=dict(overrides),
+        lookup_tables=tuple(tables),
+        lemma_fallback=fallback,
+        folder=folder,
     )
 
 
