@@ -58,7 +58,7 @@ from workbench.core.keyness import (
     group_sums,
     indicator,
     keyness_tables,
-    kish_effective_n,
+    label_codes,
     respondent_collapse,
 )
 from workbench.core.progress import Reporter
@@ -106,12 +106,19 @@ class _Unit:
     weighted: sp.csr_matrix | None
     respondents: RespondentCounts
     collapse: sp.csr_matrix  #: respondents × answer rows
+    _tfidf: tuple[sp.csr_matrix, np.ndarray] | None = None
+
+    def tfidf_by_respondent(self) -> tuple[sp.csr_matrix, np.ndarray]:
+        """Each respondent's summed TF-IDF rows and number of answer rows (computed once)."""
+        if self._tfidf is None:
+            assert self.weighted is not None
+            summed = sp.csr_matrix(self.collapse @ sp.csr_matrix(self.weighted, dtype=np.float64))
+            self._tfidf = (summed, np.asarray(self.collapse.sum(axis=1)).ravel())
+        return self._tfidf
 
 
-def _respondent_of_rows(answers: pd.DataFrame, row_ids: np.ndarray, warnings: list[str], unit: str) -> np.ndarray:
-    lookup = pd.Series(answers[RESPONDENT_ID].astype(str).to_numpy(), index=answers[ANSWER_ID].astype(str).to_numpy())
-    lookup = lookup[~lookup.index.duplicated()]
-    found = lookup.reindex(np.asarray(row_ids).astype(str)).to_numpy(dtype=object)
+def _respondent_of_rows(lookup: pd.Series, row_ids: np.ndarray, warnings: list[str], unit: str) -> np.ndarray:
+    found = lookup.reindex(pd.Index(np.asarray(row_ids, dtype=object), dtype=object)).to_numpy(dtype=object)
     missing = pd.isna(found)
     if missing.any():
         warnings.append(
@@ -126,15 +133,20 @@ def _units(answers: pd.DataFrame, weighed, warnings: list[str]) -> list[_Unit]:
     out = []
     sources = [(lang, weighed.counts[lang], weighed.weighted.get(lang)) for lang in sorted(weighed.counts)]
     sources.append((POOLED, weighed.pooled, weighed.pooled_weighted))
+    lookup = pd.Series(
+        answers[RESPONDENT_ID].astype(str).to_numpy(dtype=object),
+        index=pd.Index(answers[ANSWER_ID].astype(str).to_numpy(dtype=object), dtype=object),
+    )
+    lookup = lookup[~lookup.index.duplicated()]
     for name, counts, weighted in sources:
-        respondent_of = _respondent_of_rows(answers, counts.row_ids, warnings, name)
+        respondent_of = _respondent_of_rows(lookup, counts.row_ids, warnings, name)
         collapse, _ids, _codes = respondent_collapse(respondent_of)
         out.append(_Unit(name, counts, weighted, by_respondent(counts, respondent_of), collapse))
     return out
 
 
 def _labels(grouping: Grouping, rc: RespondentCounts) -> np.ndarray:
-    return grouping.by_respondent.reindex(rc.respondent_ids.astype(str)).to_numpy(dtype=object)
+    return grouping.by_respondent.reindex(pd.Index(rc.respondent_ids, dtype=object)).to_numpy(dtype=object)
 
 
 def compare_corpus(answers: pd.DataFrame, weighed, study: Study, reporter: Reporter) -> CompareResult:
@@ -273,7 +285,8 @@ def _compare_grouping(
     settings = study.compare
     rc = unit.respondents
     labels = _labels(grouping, rc)
-    present = [v for v in grouping.values if (labels == v).any()]
+    codes = label_codes(labels, grouping.values)
+    present = [grouping.values[i] for i in np.unique(codes[codes >= 0])]
     if len(present) < 2:
         only = f"('{present[0]}')" if present else "(none)"
         result.notes.append(
@@ -352,6 +365,10 @@ def _compare_grouping(
                 "counting": counting,
             }
         )
+    if unit.name == POOLED and study.weigh.pooled != "glossary":
+        # Tagged pooled terms never meet across languages, so a group's pooled list would
+        # only repeat its languages' lists weighted by language size; skip it.
+        return
     _group_keywords(grouping, unit, study, counting, labels, present, sums, result, seed_counter)
 
 
@@ -380,8 +397,7 @@ def _group_keywords(
     if unit.weighted is not None and unit.weighted.shape == unit.counts.matrix.shape:
         # Respondent rows hold the sum of their answers' TF-IDF rows; dividing by the
         # (weighted) number of answers makes the score a mean over the group's answers.
-        summed = sp.csr_matrix(unit.collapse @ sp.csr_matrix(unit.weighted, dtype=np.float64))
-        answers_per = np.asarray(unit.collapse.sum(axis=1)).ravel()
+        summed, answers_per = unit.tfidf_by_respondent()
         mean = bootstrap_top_k(
             summed, rc.weights, rc.terms, share_score, k=settings.top_k, resamples=settings.bootstrap,
             seed=[seed, seed_counter, 2], labels=labels, values=present, denominators=answers_per,

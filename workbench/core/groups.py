@@ -57,11 +57,10 @@ class Grouping:
     missing: int  #: respondents with no value in (one of) the columns
 
 
-def _as_text(value: object) -> str | None:
-    if value is None or (isinstance(value, float) and np.isnan(value)) or value is pd.NA:
-        return None
-    text = str(value).strip()
-    return text or None
+def _as_text(column: pd.Series) -> pd.Series:
+    """Group values as stripped text; empty and missing cells become missing."""
+    text = column.astype("string").str.strip()
+    return text.mask(text == "")
 
 
 def groupings(answers: pd.DataFrame, columns: list[str], combinations: list[list[str]]) -> tuple[list[Grouping], list[str]]:
@@ -74,7 +73,8 @@ def groupings(answers: pd.DataFrame, columns: list[str], combinations: list[list
     notes: list[str] = []
     present = [c[len(GROUP_PREFIX) :] for c in answers.columns if str(c).startswith(GROUP_PREFIX)]
     wanted = list(columns) if columns else present
-    first = answers.drop_duplicates(RESPONDENT_ID).set_index(RESPONDENT_ID)
+    first = answers.drop_duplicates(RESPONDENT_ID)
+    first = first.set_index(pd.Index(first[RESPONDENT_ID].astype(str).to_numpy(dtype=object), dtype=object))
     out: list[Grouping] = []
     for spec in [[c] for c in wanted] + [list(c) for c in combinations]:
         unknown = [c for c in spec if c not in present]
@@ -84,7 +84,7 @@ def groupings(answers: pd.DataFrame, columns: list[str], combinations: list[list
                 f"(group columns present: {', '.join(present) or 'none'}); add them to columns.groups"
             )
             continue
-        parts = [first[group_column(c)].map(_as_text) for c in spec]
+        parts = [_as_text(first[group_column(c)]) for c in spec]
         valid = np.logical_and.reduce([p.notna().to_numpy() for p in parts])
         if len(spec) == 1:
             joined = parts[0]
@@ -92,7 +92,7 @@ def groupings(answers: pd.DataFrame, columns: list[str], combinations: list[list
             joined = parts[0].astype(object)
             for p in parts[1:]:
                 joined = joined + COMBINE_SEPARATOR + p
-        series = joined[valid].astype(str)
+        series = joined[valid].astype(str).astype(object)
         values = sorted(series.unique().tolist())
         out.append(
             Grouping(

@@ -16,10 +16,10 @@ score, so tied terms share a rank and "in the top k" means rank ≤ k.
 Resampling is stratified by group when a grouping is given (each group keeps
 its size, as the design fixed it), and draws respondents, not answers, so the
 answers of one respondent stay together. One resample costs one sparse
-product: the multiplicities ``m`` (how often each respondent was drawn) times
-the respondent weights give a sparse ``(groups, respondents)`` matrix whose
-product with the respondent × term matrix is every group's resampled column
-sums.
+product per group: the multiplicities ``m`` (how often each respondent was
+drawn) times the respondent weights, multiplied into the group's block of the
+respondent × term matrix, give the group's resampled column sums
+(``counts = (w · m) @ M``), one pass over the block's non-zero entries.
 """
 
 from __future__ import annotations
@@ -30,6 +30,7 @@ import numpy as np
 import pandas as pd
 import scipy.sparse as sp
 
+from workbench.core.keyness import label_codes
 from workbench.core.progress import Reporter
 
 #: ``score(sums, totals) -> scores``: ``sums`` is ``(groups, terms)``, ``totals`` ``(groups,)``.
@@ -115,8 +116,7 @@ def bootstrap_top_k(
     else:
         assert values is not None
         names = list(values)
-    position = {v: g for g, v in enumerate(values)}
-    group_of = np.fromiter((position.get(v, -1) for v in np.asarray(labels, dtype=object)), dtype=np.int64, count=n)
+    group_of = label_codes(labels, list(values)).astype(np.int64)
     members = np.flatnonzero(group_of >= 0)
     # Respondents sorted by group, so each group is one contiguous block to draw from.
     members = members[np.argsort(group_of[members], kind="stable")]
@@ -126,15 +126,20 @@ def bootstrap_top_k(
     w_sorted = np.asarray(weights, dtype=np.float64)[members]
     d_sorted = np.ones(len(members)) if denominators is None else np.asarray(denominators, dtype=np.float64)[members]
     mx = sp.csr_matrix(matrix, dtype=np.float64)[members]
-    selector = sp.csr_matrix((w_sorted, (g_sorted, np.arange(len(members)))), shape=(len(names), len(members)))
+    ends = starts + sizes
+    # One transposed block per group: a resample's column sums of group g are then one
+    # sparse matrix-vector product, block_g @ (w · m), a single pass over the block's entries.
+    blocks = [sp.csr_matrix(mx[a:b].T) for a, b in zip(starts, ends, strict=True)]
+    n_terms = mx.shape[1]
 
     def evaluate(multiplicity: np.ndarray) -> np.ndarray:
-        selector.data = w_sorted[selector.indices] * multiplicity[selector.indices]
-        sums = np.asarray((selector @ mx).toarray())
-        totals = np.asarray(selector @ d_sorted).ravel()
+        wm = w_sorted * multiplicity
+        sums = np.empty((len(names), n_terms))
+        for g, (a, b) in enumerate(zip(starts, ends, strict=True)):
+            sums[g] = blocks[g] @ wm[a:b]
+        totals = np.bincount(g_sorted, weights=wm * d_sorted, minlength=len(names))
         return score(sums, totals)
 
-    # The selector's column order is the sorted member order, so data aligns with `indices`.
     original = evaluate(np.ones(len(members)))
     picks = top_k_indices(original, terms, k)
     ranks = [np.empty((resamples, len(p)), dtype=np.int64) for p in picks]
