@@ -187,11 +187,10 @@ def test_unknown_smart_letter_in_the_study() -> None:
     [
         (_answers().drop(columns=["terms"]), "no column 'terms'; run the terms stage first"),
         (_answers(terms=[["a"], None, ["b"], ["c"], ["d"], ["e"], ["f"]]), r"1 answers have no term list .*first: answer 'r2\|q'"),
-        (_answers(answer_id=["a", "b", "a", "c", "d", "e", "f"]), "answer id 'a' occurs twice"),
     ],
 )
 def test_malformed_answers_tables(answers: pd.DataFrame, message: str) -> None:
-    """A missing terms column, a missing term list or a repeated answer id is a one-line InputError."""
+    """A missing terms column or a missing term list is a one-line InputError."""
     with pytest.raises(InputError, match=message):
         weigh_corpus(answers, _study(), Reporter())
 

@@ -22,10 +22,17 @@ import scipy.sparse as sp
 
 from workbench.core.counts import Counts
 from workbench.core.errors import InputError
-from workbench.core.tfidf import VocabularyFilter, document_frequency
+from workbench.core.tfidf import VocabularyFilter, column_sums, document_frequency, row_reduce
 
 #: Name of the pooled corpus in every per-language dict.
 POOLED = "pooled"
+
+#: Counts per answer never approach 2**31; 4 bytes per stored entry instead of 8.
+COUNT_DTYPE = np.int32
+
+
+def _index_dtype(n_columns: int) -> type:
+    return np.int32 if n_columns < 2**31 - 1 else np.int64
 
 
 def tag(language: str, term: str) -> str:
@@ -60,21 +67,22 @@ def count_terms(
     """
     n_rows = len(term_lists)
     lengths = np.fromiter(map(len, term_lists), dtype=np.int64, count=n_rows)
-    flat = np.empty(int(lengths.sum()), dtype=object)
-    flat[:] = list(chain.from_iterable(term_lists))
+    flat = np.fromiter(chain.from_iterable(term_lists), dtype=object, count=int(lengths.sum()))
     codes, uniques = pd.factorize(flat, sort=False)
     _check_text(codes, uniques, lengths, row_ids)
     # Sorting the vocabulary (small) instead of the tokens (large): rank maps a
     # first-seen code to its place in sorted order.
     order = np.argsort(np.asarray(uniques, dtype=object), kind="stable")
-    rank = np.empty(len(uniques), dtype=np.int64)
-    rank[order] = np.arange(len(uniques), dtype=np.int64)
+    index_dtype = _index_dtype(len(uniques))
+    rank = np.empty(len(uniques), dtype=index_dtype)
+    rank[order] = np.arange(len(uniques), dtype=index_dtype)
     terms = np.asarray(uniques, dtype=object)[order]
     indptr = np.zeros(n_rows + 1, dtype=np.int64)
     np.cumsum(lengths, out=indptr[1:])
-    matrix = sp.csr_matrix(
-        (np.ones(len(codes), dtype=np.int64), rank[codes], indptr), shape=(n_rows, len(terms))
-    )
+    del flat
+    columns = rank[codes]
+    del codes
+    matrix = sp.csr_matrix((np.ones(len(columns), dtype=COUNT_DTYPE), columns, indptr), shape=(n_rows, len(terms)))
     matrix.sum_duplicates()
     ids = np.asarray(row_ids, dtype=object)
     w = np.ones(n_rows, dtype=np.float64) if weights is None else np.asarray(weights, dtype=np.float64)
@@ -103,15 +111,15 @@ def select_columns(counts: Counts, keep: np.ndarray) -> Counts:
     sorted, and the new ``indptr`` is the running count of kept entries.
     """
     matrix = counts.matrix
-    column_map = np.full(matrix.shape[1], -1, dtype=np.int64)
-    column_map[keep] = np.arange(len(keep), dtype=np.int64)
+    index_dtype = _index_dtype(len(keep))
+    column_map = np.full(matrix.shape[1], -1, dtype=index_dtype)
+    column_map[keep] = np.arange(len(keep), dtype=index_dtype)
     new_indices = column_map[matrix.indices]
     kept = new_indices >= 0
-    running = np.zeros(len(kept) + 1, dtype=np.int64)
-    np.cumsum(kept, out=running[1:])
-    selected = sp.csr_matrix(
-        (matrix.data[kept], new_indices[kept], running[matrix.indptr]), shape=(matrix.shape[0], len(keep))
-    )
+    kept_per_row = row_reduce(matrix, kept.astype(np.int32), np.add).astype(np.int64)
+    indptr = np.zeros(matrix.shape[0] + 1, dtype=np.int64)
+    np.cumsum(kept_per_row, out=indptr[1:])
+    selected = sp.csr_matrix((matrix.data[kept], new_indices[kept], indptr), shape=(matrix.shape[0], len(keep)))
     return Counts(
         matrix=selected,
         terms=counts.terms[keep],
@@ -123,7 +131,7 @@ def select_columns(counts: Counts, keep: np.ndarray) -> Counts:
 
 
 def _row_sums(matrix: sp.csr_matrix) -> np.ndarray:
-    return np.asarray(matrix.sum(axis=1)).ravel().astype(np.int64)
+    return row_reduce(matrix, matrix.data, np.add).astype(np.int64)
 
 
 @dataclass(frozen=True)
@@ -149,7 +157,7 @@ def filter_counts(counts: Counts, vocabulary: VocabularyFilter) -> tuple[Counts,
     """
     matrix = counts.matrix
     df = document_frequency(matrix)
-    totals = np.bincount(matrix.indices, weights=matrix.data, minlength=matrix.shape[1])
+    totals = column_sums(matrix)
     keep = vocabulary.select(df, totals, matrix.shape[0])
     only_zero = 0
     if (counts.weights == 0).any():
@@ -174,7 +182,7 @@ def filter_counts(counts: Counts, vocabulary: VocabularyFilter) -> tuple[Counts,
 def pool_counts(
     per_language: Mapping[str, Counts],
     concepts: Mapping[tuple[str, str], str] | None = None,
-    order: Sequence[str] | None = None,
+    positions: Mapping[str, np.ndarray] | None = None,
 ) -> Counts:
     """One count matrix over the answers of every language.
 
@@ -188,9 +196,10 @@ def pool_counts(
         ``"price"`` share one column (counts add up when one answer holds
         several terms of a concept). A term without a concept keeps its
         language tag, ``"de:preis"``; without ``concepts`` every term does.
-    order
-        Answer ids in the order the pooled rows should have (e.g. input
-        order); by default languages follow each other in sorted order.
+    positions
+        For each language, the pooled row of each of its rows (together a
+        permutation of 0..n-1, e.g. the answers' places in the input); by
+        default languages follow each other in sorted order.
 
     Returns
     -------
@@ -205,17 +214,18 @@ def pool_counts(
             names = [concepts.get((language, t), tag(language, t)) for t in terms]
         else:
             names = [tag(language, t) for t in terms]
-        names_per_language.append(np.asarray(names, dtype=object))
-    all_names = np.concatenate(names_per_language) if names_per_language else np.empty(0, dtype=object)
-    vocabulary = np.asarray(sorted(set(all_names.tolist())), dtype=object)
-    lookup = pd.Index(vocabulary)
+        names_per_language.append(names)
+    vocabulary_list = sorted({name for names in names_per_language for name in names})
+    column_of = {name: i for i, name in enumerate(vocabulary_list)}
+    vocabulary = np.asarray(vocabulary_list, dtype=object)
 
+    index_dtype = _index_dtype(len(vocabulary))
     indptr_parts = [np.zeros(1, dtype=np.int64)]
     indices_parts, data_parts = [], []
     offset = 0
     for language, names in zip(languages, names_per_language):
         matrix = per_language[language].matrix
-        column_map = lookup.get_indexer(names).astype(np.int64)
+        column_map = np.fromiter((column_of[name] for name in names), dtype=index_dtype, count=len(names))
         indices_parts.append(column_map[matrix.indices])
         data_parts.append(matrix.data)
         indptr_parts.append(matrix.indptr[1:].astype(np.int64) + offset)
@@ -223,12 +233,13 @@ def pool_counts(
     n_rows = sum(per_language[lang].matrix.shape[0] for lang in languages)
     matrix = sp.csr_matrix(
         (
-            np.concatenate(data_parts) if data_parts else np.empty(0, dtype=np.int64),
-            np.concatenate(indices_parts) if indices_parts else np.empty(0, dtype=np.int64),
+            np.concatenate(data_parts) if data_parts else np.empty(0, dtype=COUNT_DTYPE),
+            np.concatenate(indices_parts) if indices_parts else np.empty(0, dtype=index_dtype),
             np.concatenate(indptr_parts),
         ),
         shape=(n_rows, len(vocabulary)),
     )
+    del data_parts, indices_parts
     matrix.sum_duplicates()
     row_ids = _concat([per_language[lang].row_ids for lang in languages], object)
     weights = _concat([per_language[lang].weights for lang in languages], np.float64)
@@ -239,12 +250,15 @@ def pool_counts(
         ],
         np.int64,
     )
-    if order is not None:
-        position = pd.Index(row_ids).get_indexer(np.asarray(order, dtype=object))
-        if len(position) != n_rows or (position < 0).any():
-            raise ValueError("pooled row order must name every answer of the per-language counts exactly once")
-        matrix = matrix[position]
-        row_ids, weights, lengths = row_ids[position], weights[position], lengths[position]
+    if positions is not None:
+        destination = _concat([np.asarray(positions[lang]) for lang in languages], np.int64)
+        source = np.full(n_rows, -1, dtype=np.int64)
+        if len(destination) == n_rows and destination.min(initial=0) >= 0 and destination.max(initial=-1) < n_rows:
+            source[destination] = np.arange(n_rows, dtype=np.int64)
+        if (source < 0).any():
+            raise ValueError("pooled row positions must be a permutation of 0..n-1 over all languages' rows")
+        matrix = matrix[source]
+        row_ids, weights, lengths = row_ids[source], weights[source], lengths[source]
     return Counts(matrix=matrix, terms=vocabulary, row_ids=row_ids, weights=weights, language=POOLED, lengths=lengths)
 
 

@@ -29,7 +29,7 @@ import pandas as pd
 import scipy.sparse as sp
 
 from workbench.core.counts import Counts
-from workbench.core.tfidf import document_frequency
+from workbench.core.tfidf import column_sums, document_frequency
 
 KEYWORD_COLUMNS: tuple[str, ...] = (
     "ranking",
@@ -48,41 +48,54 @@ RANKINGS: tuple[str, ...] = ("mean_weight", "doc_share")
 EXAMPLE_SEPARATOR = "; "
 
 
-def term_statistics(counts: Counts, weighted: sp.csr_matrix, idf: np.ndarray) -> pd.DataFrame:
-    """Every term's figures (columns of :data:`KEYWORD_COLUMNS` except ranking, rank, examples).
-
-    Computed from the column indices of the CSR arrays with ``np.bincount``.
-    """
+def _figures(
+    counts: Counts, weighted: sp.csr_matrix, idf: np.ndarray, df_weighted: np.ndarray | None
+) -> dict[str, np.ndarray]:
     matrix = counts.matrix
-    n_terms = matrix.shape[1]
     w = np.asarray(counts.weights, dtype=np.float64)
     total_weight = float(w.sum())
-    w_count_entry = np.repeat(w, np.diff(matrix.indptr))
-    w_weight_entry = np.repeat(w, np.diff(weighted.indptr))
-    df_weighted = document_frequency(matrix, w)
-    frame = pd.DataFrame(
-        {
-            "term": counts.terms,
-            "mean_weight": np.bincount(weighted.indices, weights=weighted.data * w_weight_entry, minlength=n_terms)
-            / total_weight,
-            "doc_share": df_weighted / total_weight,
-            "df": document_frequency(matrix).astype(np.int64),
-            "df_weighted": df_weighted,
-            "total_count": np.bincount(matrix.indices, weights=matrix.data, minlength=n_terms).astype(np.int64),
-            "total_count_weighted": np.bincount(
-                matrix.indices, weights=matrix.data * w_count_entry, minlength=n_terms
-            ),
-            "idf": np.asarray(idf, dtype=np.float64),
-        }
-    )
-    return frame
+    if df_weighted is None:
+        df_weighted = document_frequency(matrix, w)
+    return {
+        "mean_weight": column_sums(weighted, w) / total_weight,
+        "doc_share": np.asarray(df_weighted, dtype=np.float64) / total_weight,
+        "df": document_frequency(matrix).astype(np.int64),
+        "df_weighted": np.asarray(df_weighted, dtype=np.float64),
+        "total_count": column_sums(matrix).astype(np.int64),
+        "total_count_weighted": column_sums(matrix, w),
+        "idf": np.asarray(idf, dtype=np.float64),
+    }
+
+
+def term_statistics(
+    counts: Counts, weighted: sp.csr_matrix, idf: np.ndarray, df_weighted: np.ndarray | None = None
+) -> pd.DataFrame:
+    """Every term's figures (columns of :data:`KEYWORD_COLUMNS` except ranking, rank, examples).
+
+    Column sums over the CSR arrays (``tfidf.column_sums``); ``df_weighted``
+    may be passed when the weighting already computed it.
+    """
+    return pd.DataFrame({"term": counts.terms, **_figures(counts, weighted, idf, df_weighted)})
 
 
 def _top(scores: np.ndarray, top_k: int) -> np.ndarray:
     """Column indices of the ``top_k`` positive scores, highest first, ties by column (= term) order."""
     candidates = np.flatnonzero(scores > 0)
+    if len(candidates) > top_k:
+        # Only scores at or above the k-th largest can make the list; sort just those.
+        threshold = np.partition(scores[candidates], len(candidates) - top_k)[len(candidates) - top_k]
+        candidates = candidates[scores[candidates] >= threshold]
     order = np.lexsort((candidates, -scores[candidates]))
     return candidates[order[:top_k]]
+
+
+def _best_rows(values: np.ndarray, rows: np.ndarray, n: int) -> np.ndarray:
+    """The rows of the ``n`` highest values, ties in row order (``rows`` ascending)."""
+    if len(values) > n:
+        threshold = np.partition(values, len(values) - n)[len(values) - n]
+        chosen = values >= threshold
+        values, rows = values[chosen], rows[chosen]
+    return rows[np.lexsort((rows, -values))[:n]]
 
 
 def _examples(
@@ -90,27 +103,37 @@ def _examples(
 ) -> dict[int, str]:
     """Up to ``n`` answer ids per column where the weight (else the count) is highest; ties in row order."""
     result: dict[int, str] = {}
-    if len(columns) == 0:
-        return result
-    by_weight = weighted[:, columns].tocsc()
-    by_count = counts[:, columns].tocsc()
-    for position, column in enumerate(columns):
-        source = by_weight if by_weight.indptr[position + 1] > by_weight.indptr[position] else by_count
-        start, stop = source.indptr[position], source.indptr[position + 1]
-        values = source.data[start:stop]
-        rows = source.indices[start:stop]
-        if len(values) > n:
-            # Only entries at or above the n-th largest value can be chosen; sort just those.
-            threshold = np.partition(values, len(values) - n)[len(values) - n]
-            chosen = values >= threshold
-            values, rows = values[chosen], rows[chosen]
-        order = np.lexsort((rows, -values))[:n]
-        result[int(column)] = EXAMPLE_SEPARATOR.join(str(row_ids[r]) for r in rows[order])
+    remaining = np.zeros(weighted.shape[1], dtype=bool)
+    remaining[columns] = True
+    # Terms whose weights are all 0 (none stored) take their examples from the counts.
+    for source in (weighted, counts):
+        if not remaining.any():
+            break
+        hits = np.flatnonzero(remaining[source.indices])
+        if hits.size == 0:
+            continue
+        rows = np.searchsorted(source.indptr, hits, side="right") - 1
+        cols = source.indices[hits]
+        values = source.data[hits].astype(np.float64)
+        # Hits come in row order; a stable sort by column keeps it within each column.
+        order = np.argsort(cols, kind="stable")
+        cols, rows, values = cols[order], rows[order], values[order]
+        starts = np.flatnonzero(np.r_[True, cols[1:] != cols[:-1]])
+        for start, stop in zip(starts, np.r_[starts[1:], len(cols)]):
+            column = int(cols[start])
+            picked = _best_rows(values[start:stop], rows[start:stop], n)
+            result[column] = EXAMPLE_SEPARATOR.join(str(row_ids[r]) for r in picked)
+            remaining[column] = False
     return result
 
 
 def keyword_table(
-    counts: Counts, weighted: sp.csr_matrix, idf: np.ndarray, top_k: int, n_examples: int = 3
+    counts: Counts,
+    weighted: sp.csr_matrix,
+    idf: np.ndarray,
+    top_k: int,
+    n_examples: int = 3,
+    df_weighted: np.ndarray | None = None,
 ) -> pd.DataFrame:
     """Top terms by respondent-weighted mean weight and by weighted document share.
 
@@ -126,6 +149,8 @@ def keyword_table(
         Terms per ranking.
     n_examples
         Answer ids per term in ``examples``.
+    df_weighted
+        Σ_{i: c_ij > 0} w_i if already known (computed otherwise).
 
     Returns
     -------
@@ -135,17 +160,19 @@ def keyword_table(
         mean_weight_j = Σ_i w_i x_ij / Σ_i w_i and
         doc_share_j = Σ_{i: c_ij > 0} w_i / Σ_i w_i.
     """
-    stats = term_statistics(counts, weighted, idf)
-    parts = []
-    chosen = {ranking: _top(stats[ranking].to_numpy(), top_k) for ranking in RANKINGS}
-    needed = np.unique(np.concatenate(list(chosen.values()))) if chosen else np.empty(0, dtype=np.int64)
+    figures = _figures(counts, weighted, idf, df_weighted)
+    chosen = [(ranking, _top(figures[ranking], top_k)) for ranking in RANKINGS]
+    needed = np.unique(np.concatenate([columns for _, columns in chosen]))
     examples = _examples(weighted, counts.matrix, needed, counts.row_ids, n_examples)
-    for ranking in RANKINGS:
-        columns = chosen[ranking]
-        part = stats.iloc[columns].copy()
-        part.insert(0, "rank", np.arange(1, len(columns) + 1, dtype=np.int64))
-        part.insert(0, "ranking", ranking)
-        part["examples"] = [examples.get(int(c), "") for c in columns]
-        parts.append(part)
-    table = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame(columns=list(KEYWORD_COLUMNS))
+    columns = np.concatenate([columns for _, columns in chosen]).astype(np.int64)
+    # Only the chosen rows become a table: building a frame of the whole vocabulary costs more than the sums.
+    table = pd.DataFrame(
+        {
+            "ranking": np.repeat([ranking for ranking, _ in chosen], [len(c) for _, c in chosen]).astype(object),
+            "rank": np.concatenate([np.arange(1, len(c) + 1, dtype=np.int64) for _, c in chosen]),
+            "term": counts.terms[columns].astype(object),
+            **{name: values[columns] for name, values in figures.items()},
+            "examples": np.array([examples.get(int(c), "") for c in columns], dtype=object),
+        }
+    )
     return table[list(KEYWORD_COLUMNS)]

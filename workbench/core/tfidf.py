@@ -286,6 +286,9 @@ class WeightingScheme:
 
 # --------------------------------------------------------------------------- CSR helpers
 
+#: Entries per block of rows: temporaries stay a few MB however large the corpus.
+BLOCK_ENTRIES = 1 << 20
+
 
 def _log(values: np.ndarray, base: str, out: np.ndarray | None = None) -> np.ndarray:
     if base == "10":
@@ -295,49 +298,128 @@ def _log(values: np.ndarray, base: str, out: np.ndarray | None = None) -> np.nda
     return np.log(values, out=out)
 
 
-def _row_of_entry(matrix: sp.csr_matrix) -> np.ndarray:
-    """Row index of each stored entry (length nnz)."""
-    return np.repeat(np.arange(matrix.shape[0], dtype=np.int64), np.diff(matrix.indptr))
+def row_blocks(indptr: np.ndarray, entries: int | None = None) -> list[tuple[int, int, int, int]]:
+    """Split the rows into consecutive blocks of about ``entries`` stored entries.
+
+    Returns ``(first_row, end_row, first_entry, end_entry)`` per block. The
+    CSR passes below work block by block, so their temporary arrays are
+    bounded by the block size instead of the number of stored entries, and a
+    block stays in cache between the steps applied to it.
+    """
+    n_rows = len(indptr) - 1
+    if n_rows <= 0:
+        return []
+    entries = entries or BLOCK_ENTRIES
+    nnz = int(indptr[-1])
+    cuts = np.searchsorted(indptr, np.arange(entries, nnz, entries), side="left")
+    bounds = np.unique(np.concatenate(([0], np.clip(cuts, 0, n_rows), [n_rows])))
+    return [(int(r0), int(r1), int(indptr[r0]), int(indptr[r1])) for r0, r1 in zip(bounds[:-1], bounds[1:])]
 
 
-def row_reduce(matrix: sp.csr_matrix, values: np.ndarray, ufunc: np.ufunc, empty: float = 0.0) -> np.ndarray:
-    """Reduce ``values`` (one per stored entry) row by row with ``ufunc`` via ``indptr``.
+def _reduce(values: np.ndarray, local_indptr: np.ndarray, ufunc: np.ufunc, empty: float) -> np.ndarray:
+    """Reduce ``values`` per row of one block; rows without entries get ``empty``.
 
-    Rows without entries get ``empty``. ``np.ufunc.reduceat`` mishandles empty
-    segments (it returns the next element), so only non-empty rows are reduced:
+    ``np.ufunc.reduceat`` mishandles empty segments (it returns the next
+    element), so when some row is empty only the non-empty rows are reduced:
     between two non-empty starts lie exactly the entries of the first row.
     """
-    n_rows = matrix.shape[0]
-    out = np.full(n_rows, empty, dtype=np.float64)
-    starts = matrix.indptr[:-1]
-    nonempty = np.diff(matrix.indptr) > 0
+    sizes = np.diff(local_indptr)
+    if values.size and sizes.all():
+        return ufunc.reduceat(values, local_indptr[:-1]).astype(np.float64, copy=False)
+    out = np.full(len(sizes), empty, dtype=np.float64)
     if values.size:
-        out[nonempty] = ufunc.reduceat(values, starts[nonempty])
+        nonempty = sizes > 0
+        out[nonempty] = ufunc.reduceat(values, local_indptr[:-1][nonempty])
     return out
 
 
-def _scale_rows(matrix: sp.csr_matrix, factors: np.ndarray) -> None:
-    """Multiply every stored entry of row i by ``factors[i]``, in place."""
-    matrix.data *= np.repeat(factors, np.diff(matrix.indptr))
+def row_reduce(matrix: sp.csr_matrix, values: np.ndarray, ufunc: np.ufunc, empty: float = 0.0) -> np.ndarray:
+    """Reduce ``values`` (one per stored entry) row by row with ``ufunc`` via ``indptr``; empty rows get ``empty``."""
+    indptr = matrix.indptr
+    parts = [_reduce(values[a:b], indptr[r0 : r1 + 1] - a, ufunc, empty) for r0, r1, a, b in row_blocks(indptr)]
+    return np.concatenate(parts) if parts else np.empty(0, dtype=np.float64)
+
+
+def _tf_block(data: np.ndarray, local_indptr: np.ndarray, scheme: WeightingScheme, lengths: np.ndarray | None) -> None:
+    """Term-frequency transform of one block's stored counts, in place."""
+    kind = scheme.tf
+    if kind == "raw":
+        return
+    if kind == "binary":
+        data[:] = 1.0
+        return
+    if kind == "log":
+        _log(data, scheme.base, out=data)
+        data += 1.0
+        return
+    sizes = np.diff(local_indptr)
+    if kind == "relative":
+        totals = _reduce(data, local_indptr, np.add, 0.0) if lengths is None else lengths.astype(np.float64)
+        data *= np.repeat(np.divide(1.0, totals, out=np.zeros_like(totals), where=totals > 0), sizes)
+    elif kind == "augmented":
+        row_max = _reduce(data, local_indptr, np.maximum, 1.0)
+        data *= np.repeat(0.5 / row_max, sizes)
+        data += 0.5
+    elif kind == "logave":
+        mean = _reduce(data, local_indptr, np.add, 1.0) / np.maximum(sizes, 1)
+        denominator = 1.0 + _log(mean, scheme.base)
+        _log(data, scheme.base, out=data)
+        data += 1.0
+        data *= np.repeat(1.0 / denominator, sizes)
+
+
+def _norm_block(data: np.ndarray, local_indptr: np.ndarray, norm: str) -> None:
+    """Normalise each row of one block, in place; rows of norm 0 stay as they are."""
+    if norm == "none":
+        return
+    if norm == "l2":
+        sizes_of_rows = np.sqrt(_reduce(np.square(data), local_indptr, np.add, 0.0))
+    else:
+        sizes_of_rows = _reduce(np.abs(data), local_indptr, np.add, 0.0)
+    inverse = np.divide(1.0, sizes_of_rows, out=np.ones_like(sizes_of_rows), where=sizes_of_rows > 0)
+    data *= np.repeat(inverse, np.diff(local_indptr))
+
+
+def column_sums(
+    matrix: sp.csr_matrix, row_weights: np.ndarray | None = None, binary: bool = False
+) -> np.ndarray:
+    """Σ_i w_i f(c_ij) for every column j, from the column indices (``np.bincount``), block by block.
+
+    ``f(c) = c``, or ``1 if c != 0`` with ``binary``; ``w_i = 1`` without
+    ``row_weights``. No temporary grows with the number of stored entries.
+    """
+    matrix = _as_csr(matrix)
+    n_cols = matrix.shape[1]
+    out = np.zeros(n_cols, dtype=np.float64)
+    weights = None if row_weights is None else np.asarray(row_weights, dtype=np.float64)
+    indptr, indices, data = matrix.indptr, matrix.indices, matrix.data
+    for r0, r1, a, b in row_blocks(indptr, max(BLOCK_ENTRIES, n_cols)):
+        columns = indices[a:b]
+        values = data[a:b]
+        per_entry = None if weights is None else np.repeat(weights[r0:r1], np.diff(indptr[r0 : r1 + 1]))
+        if binary:
+            present = values != 0
+            if not present.all():
+                columns = columns[present]
+                per_entry = None if per_entry is None else per_entry[present]
+            out += np.bincount(columns, weights=per_entry, minlength=n_cols)
+        else:
+            amount = values.astype(np.float64) if per_entry is None else values * per_entry
+            out += np.bincount(columns, weights=amount, minlength=n_cols)
+    return out
 
 
 def document_frequency(matrix: sp.csr_matrix, weights: np.ndarray | None = None) -> np.ndarray:
     """Document frequency of every column, from the column indices of the stored entries.
 
-    df_j = #{i : c_ij > 0}, or with weights df_j = sum_{i : c_ij > 0} w_i.
+    df_j = #{i : c_ij > 0}, or with weights df_j = Σ_{i : c_ij > 0} w_i.
     Explicit zeros are not counted. The matrix must hold no duplicate entries
     (canonical CSR, as ``counting`` builds it).
     """
     matrix = _as_csr(matrix)
-    n_cols = matrix.shape[1]
-    present = matrix.data != 0
-    indices = matrix.indices if present.all() else matrix.indices[present]
-    if weights is None:
-        return np.bincount(indices, minlength=n_cols).astype(np.float64)
-    per_entry = np.repeat(np.asarray(weights, dtype=np.float64), np.diff(matrix.indptr))
-    if not present.all():
-        per_entry = per_entry[present]
-    return np.bincount(indices, weights=per_entry, minlength=n_cols)
+    if weights is None and np.count_nonzero(matrix.data) == matrix.nnz:
+        return np.bincount(matrix.indices, minlength=matrix.shape[1]).astype(np.float64)
+    return column_sums(matrix, weights, binary=True)
 
 
 def idf_from_df(df: np.ndarray, n_documents: float, scheme: WeightingScheme) -> np.ndarray:
@@ -372,33 +454,11 @@ def apply_tf(matrix: sp.csr_matrix, scheme: WeightingScheme, lengths: np.ndarray
 
     ``matrix.data`` must be floating point. ``lengths`` (terms per answer
     before filters) is the denominator of ``relative`` tf; without it the row
-    sums are used.
+    sums are used. Formulas: see the module docstring.
     """
-    data = matrix.data
-    kind = scheme.tf
-    if kind == "raw":
-        return
-    if kind == "binary":
-        data[:] = 1.0
-    elif kind == "log":
-        _log(data, scheme.base, out=data)
-        data += 1.0
-    elif kind == "relative":
-        totals = row_reduce(matrix, data, np.add) if lengths is None else np.asarray(lengths, dtype=np.float64)
-        with np.errstate(divide="ignore"):
-            inverse = np.where(totals > 0, 1.0 / np.where(totals > 0, totals, 1.0), 0.0)
-        _scale_rows(matrix, inverse)
-    elif kind == "augmented":
-        row_max = row_reduce(matrix, data, np.maximum, empty=1.0)
-        _scale_rows(matrix, 0.5 / row_max)
-        data += 0.5
-    elif kind == "logave":
-        counts_per_row = np.diff(matrix.indptr)
-        mean = row_reduce(matrix, data, np.add, empty=1.0) / np.maximum(counts_per_row, 1)
-        denominator = 1.0 + _log(np.maximum(mean, 1e-300), scheme.base)
-        _log(data, scheme.base, out=data)
-        data += 1.0
-        _scale_rows(matrix, 1.0 / denominator)
+    indptr = matrix.indptr
+    for r0, r1, a, b in row_blocks(indptr):
+        _tf_block(matrix.data[a:b], indptr[r0 : r1 + 1] - a, scheme, None if lengths is None else lengths[r0:r1])
 
 
 def normalise_rows(matrix: sp.csr_matrix, norm: str) -> None:
@@ -406,16 +466,9 @@ def normalise_rows(matrix: sp.csr_matrix, norm: str) -> None:
 
     Rows whose norm is 0 are left as they are.
     """
-    if norm == "none":
-        return
-    data = matrix.data
-    if norm == "l2":
-        sums = np.sqrt(row_reduce(matrix, data * data, np.add))
-    else:
-        sums = row_reduce(matrix, np.abs(data), np.add)
-    with np.errstate(divide="ignore"):
-        inverse = np.where(sums > 0, 1.0 / np.where(sums > 0, sums, 1.0), 1.0)
-    _scale_rows(matrix, inverse)
+    indptr = matrix.indptr
+    for r0, r1, a, b in row_blocks(indptr):
+        _norm_block(matrix.data[a:b], indptr[r0 : r1 + 1] - a, norm)
 
 
 class TfidfWeighting:
@@ -427,8 +480,9 @@ class TfidfWeighting:
     ----------
     n_documents_ : float
         N = number of rows, or the sum of the respondent weights.
-    df_ : numpy.ndarray
-        df_j = rows containing term j, or the sum of their weights.
+    df_ : numpy.ndarray or None
+        df_j = rows containing term j, or the sum of their weights; ``None``
+        when the scheme has no idf (it is not needed then).
     idf_ : numpy.ndarray
         idf_j from ``idf_from_df(df_, n_documents_, scheme)``.
     """
@@ -446,8 +500,13 @@ class TfidfWeighting:
             if weights.shape != (counts.shape[0],):
                 raise ValueError(f"{len(weights)} weights for {counts.shape[0]} rows")
             self.n_documents_ = float(weights.sum())
-        self.df_ = document_frequency(counts, weights)
-        self.idf_ = idf_from_df(self.df_, self.n_documents_, self.scheme)
+        if self.scheme.idf == "none":
+            # idf = 1 (+ idf_add) whatever df is; skip the pass over the indices.
+            self.df_ = None
+            self.idf_ = np.full(counts.shape[1], 1.0 + self.scheme.idf_add)
+        else:
+            self.df_ = document_frequency(counts, weights)
+            self.idf_ = idf_from_df(self.df_, self.n_documents_, self.scheme)
         return self
 
     def transform(self, counts: sp.csr_matrix, lengths: np.ndarray | None = None) -> sp.csr_matrix:
@@ -466,9 +525,10 @@ def weight_matrix(
 ) -> sp.csr_matrix:
     """Weight a count matrix with a given idf vector: w_ij = norm_i(tf(c_ij) · idf_j).
 
-    The counts are copied once into a float64 CSR matrix; tf, idf and the
-    normalisation then scale its ``data`` in place. Entries that end up 0
-    (e.g. idf 0 for a term in every answer) are not stored.
+    The counts are copied once into a float64 CSR matrix; then, block of rows
+    by block of rows, tf, idf and the normalisation scale its ``data`` in
+    place. Entries that end up 0 (e.g. idf 0 for a term in every answer) are
+    not stored.
 
     Parameters
     ----------
@@ -490,11 +550,17 @@ def weight_matrix(
         (counts.data.astype(np.float64, copy=True), counts.indices.copy(), counts.indptr.copy()),
         shape=counts.shape,
     )
-    apply_tf(weighted, scheme, lengths)
-    if not np.all(idf == 1.0):
-        weighted.data *= idf[weighted.indices]
-    normalise_rows(weighted, scheme.norm)
-    weighted.eliminate_zeros()
+    use_idf = not np.all(idf == 1.0)
+    data, indices, indptr = weighted.data, weighted.indices, weighted.indptr
+    for r0, r1, a, b in row_blocks(indptr):
+        block = data[a:b]
+        local = indptr[r0 : r1 + 1] - a
+        _tf_block(block, local, scheme, None if lengths is None else lengths[r0:r1])
+        if use_idf:
+            block *= idf[indices[a:b]]
+        _norm_block(block, local, scheme.norm)
+    if np.count_nonzero(data) < weighted.nnz:
+        weighted.eliminate_zeros()
     return weighted
 
 

@@ -37,7 +37,7 @@ from workbench.core.errors import InputError, SettingsError
 from workbench.core.keywords import keyword_table
 from workbench.core.progress import Reporter
 from workbench.core.settings import UNDETERMINED, Study
-from workbench.core.tfidf import TfidfWeighting, VocabularyFilter, WeightingScheme
+from workbench.core.tfidf import TfidfWeighting, VocabularyFilter, WeightingScheme, document_frequency
 
 STAGE = "weigh"
 
@@ -108,16 +108,20 @@ def _entering(answers: pd.DataFrame, study: Study) -> pd.Series:
     return enters & answers[LANGUAGE].notna()
 
 
-def _check_term_lists(terms: pd.Series, ids: pd.Series) -> list[list[str]]:
-    is_list = terms.map(lambda value: isinstance(value, (list, tuple, np.ndarray)))
-    if not is_list.all():
-        bad = ids[~is_list]
+_LIST_TYPES = (list, tuple, np.ndarray)
+
+
+def _check_term_lists(terms: pd.Series, ids: pd.Series) -> np.ndarray:
+    """The term lists as an object array; one set of types instead of a Python check per row."""
+    values = terms.to_numpy(dtype=object)
+    if not set(map(type, values)) <= set(_LIST_TYPES):
+        bad = ids[~terms.map(lambda value: isinstance(value, _LIST_TYPES))]
         raise InputError(
             f"{len(bad):,} answers have no term list in column '{TERMS}' (first: answer '{bad.iloc[0]}'); "
             "re-run the terms stage"
         )
     # Tokens themselves are checked on the vocabulary by ``count_terms``.
-    return terms.tolist()
+    return values
 
 
 def _weights(selected: pd.DataFrame, study: Study) -> np.ndarray:
@@ -181,8 +185,12 @@ def _weigh_one(
     warnings: list[str],
 ) -> tuple[sp.csr_matrix, TfidfWeighting]:
     weighting = TfidfWeighting(scheme).fit(counts.matrix, counts.weights)
+    if weighting.df_ is None:
+        weighting.df_ = document_frequency(counts.matrix, counts.weights)
     n_rows = counts.matrix.shape[0]
-    if n_rows == 1 and counts.matrix.shape[1]:
+    if scheme.idf == "none":
+        pass
+    elif n_rows == 1 and counts.matrix.shape[1]:
         warnings.append(f"{label} has a single answer: idf is degenerate (df = N for every term); {_idf_value_text(scheme)}")
     elif counts.matrix.shape[1] and np.all(weighting.df_ >= weighting.n_documents_):
         warnings.append(f"in {label} every term occurs in every answer: idf is degenerate; {_idf_value_text(scheme)}")
@@ -270,8 +278,6 @@ def weigh_corpus(
     if left_out:
         notes.append(f"{left_out:,} answers do not enter weighting (flagged, excluded or undetermined language)")
     ids = selected[ANSWER_ID].astype(str)
-    if ids.duplicated().any():
-        raise InputError(f"answer id '{ids[ids.duplicated()].iloc[0]}' occurs twice; answer ids must be unique")
     term_lists = _check_term_lists(selected[TERMS], ids)
     weights = _weights(selected, study)
     weighted_by = study.columns.weight
@@ -282,22 +288,24 @@ def weigh_corpus(
             "they stay in the matrices but count for nothing in N, df and the keyword tables"
         )
 
-    languages = sorted(selected[LANGUAGE].astype(str).unique())
+    language_codes, language_names = pd.factorize(selected[LANGUAGE].astype(str), sort=True)
+    languages = [str(name) for name in language_names]
     steps = 2 * len(languages) + 2
     step = 0
-    language_of = selected[LANGUAGE].astype(str).to_numpy()
     id_array = ids.to_numpy(dtype=object)
     unfiltered: dict[str, Counts] = {}
-    for language in languages:
+    positions: dict[str, np.ndarray] = {}
+    for code, language in enumerate(languages):
         reporter.update(STAGE, step, steps, f"counting {language}")
-        rows = np.flatnonzero(language_of == language)
+        rows = np.flatnonzero(language_codes == code)
         lang_weights = weights[rows]
         if not (lang_weights > 0).any():
             raise InputError(
                 f"every answer in language '{language}' has weight 0 in column '{weighted_by}'; "
                 "its idf cannot be computed; check the weights of that language"
             )
-        unfiltered[language] = count_terms([term_lists[r] for r in rows], id_array[rows], language, lang_weights)
+        unfiltered[language] = count_terms(term_lists[rows], id_array[rows], language, lang_weights)
+        positions[language] = rows
         step += 1
 
     if sum(c.matrix.shape[1] for c in unfiltered.values()) == 0:
@@ -306,59 +314,71 @@ def weigh_corpus(
             "check the terms stage (stop words, terms.min_length, terms.keep_numbers)"
         )
 
-    counts: dict[str, Counts] = {}
-    weighted: dict[str, sp.csr_matrix] = {}
     idf: dict[str, np.ndarray] = {}
     keywords: dict[str, pd.DataFrame] = {}
     effective_n: dict[str, float] = {}
     n_documents: dict[str, float] = {}
     document_frequency: dict[str, np.ndarray] = {}
-    for language in languages:
-        reporter.update(STAGE, step, steps, f"weighting {language}")
-        label = f"language '{language}'"
-        filtered, report = filter_counts(unfiltered[language], vocabulary)
-        _filter_warnings(report, label, warnings, notes)
-        matrix, weighting = _weigh_one(filtered, scheme, label, warnings)
-        counts[language] = filtered
-        weighted[language] = matrix
-        idf[language] = weighting.idf_
-        n_documents[language] = weighting.n_documents_
-        document_frequency[language] = weighting.df_
-        effective_n[language] = kish_effective_n(filtered.weights)
-        keywords[language] = keyword_table(filtered, matrix, weighting.idf_, settings.top_k)
-        step += 1
 
-    if all(c.matrix.shape[1] == 0 for c in counts.values()):
-        total = sum(c.matrix.shape[1] for c in unfiltered.values())
-        raise InputError(
-            f"no terms remain after filters: all {total:,} distinct terms of {len(selected):,} answers were removed "
-            f"({vocabulary.describe()}); lower weigh.min_df (now {settings.min_df}), raise weigh.max_df "
-            f"(now {settings.max_df}) or weigh.max_terms"
-        )
+    def keep(name: str, filtered: Counts, matrix: sp.csr_matrix, weighting: TfidfWeighting) -> None:
+        counts_or_pooled[name] = filtered
+        weighted_or_pooled[name] = matrix
+        idf[name] = weighting.idf_
+        n_documents[name] = weighting.n_documents_
+        document_frequency[name] = weighting.df_
+        effective_n[name] = kish_effective_n(filtered.weights)
+        keywords[name] = keyword_table(filtered, matrix, weighting.idf_, settings.top_k, df_weighted=weighting.df_)
 
+    counts_or_pooled: dict[str, Counts] = {}
+    weighted_or_pooled: dict[str, sp.csr_matrix] = {}
+    distinct_terms = sum(c.matrix.shape[1] for c in unfiltered.values())
+
+    # The pooled matrix first: it is built from the unfiltered language counts,
+    # which can then be released one by one (peak memory of a large run).
     reporter.update(STAGE, step, steps, "pooling")
+    pooled_notes: list[str] = []
+    pooled_warnings: list[str] = []
     concepts = glossary if settings.pooled == "glossary" else None
     if glossary and settings.pooled == "tagged":
-        notes.append("a glossary was given but weigh.pooled = 'tagged': pooled terms keep their language tags")
-    pooled_all = pool_counts(unfiltered, concepts, order=id_array)
+        pooled_notes.append("a glossary was given but weigh.pooled = 'tagged': pooled terms keep their language tags")
+    pooled_all = pool_counts(unfiltered, concepts, positions=positions)
     pooled, report = filter_counts(pooled_all, vocabulary)
-    _filter_warnings(report, "the pooled matrix", warnings, notes)
+    del pooled_all
+    _filter_warnings(report, "the pooled matrix", pooled_warnings, pooled_notes)
     if concepts:
         concept_names = set(concepts.values())
         merged = int(sum(1 for t in pooled.terms if t in concept_names))
-        notes.append(f"the pooled matrix has {merged:,} glossary concepts; other terms keep their language tags")
+        pooled_notes.append(f"the pooled matrix has {merged:,} glossary concepts; other terms keep their language tags")
     step += 1
     reporter.update(STAGE, step, steps, "weighting pooled")
-    pooled_weighted, weighting = _weigh_one(pooled, scheme, "the pooled matrix", warnings)
-    idf[POOLED] = weighting.idf_
-    n_documents[POOLED] = weighting.n_documents_
-    document_frequency[POOLED] = weighting.df_
-    effective_n[POOLED] = kish_effective_n(pooled.weights)
-    keywords[POOLED] = keyword_table(pooled, pooled_weighted, weighting.idf_, settings.top_k)
-    notes.append(
+    pooled_weighted, weighting = _weigh_one(pooled, scheme, "the pooled matrix", pooled_warnings)
+    keep(POOLED, pooled, pooled_weighted, weighting)
+    pooled_notes.append(
         f"pooled idf uses N = {weighting.n_documents_:,.6g} over the answers of {len(languages)} "
         "languages: a tagged term keeps its df but N grows"
     )
+    step += 1
+
+    for language in languages:
+        reporter.update(STAGE, step, steps, f"weighting {language}")
+        label = f"language '{language}'"
+        filtered, report = filter_counts(unfiltered.pop(language), vocabulary)
+        _filter_warnings(report, label, warnings, notes)
+        matrix, weighting = _weigh_one(filtered, scheme, label, warnings)
+        keep(language, filtered, matrix, weighting)
+        step += 1
+
+    if all(counts_or_pooled[lang].matrix.shape[1] == 0 for lang in languages):
+        raise InputError(
+            f"no terms remain after filters: all {distinct_terms:,} distinct terms of {len(selected):,} answers "
+            f"were removed ({vocabulary.describe()}); lower weigh.min_df (now {settings.min_df}), raise "
+            f"weigh.max_df (now {settings.max_df}) or weigh.max_terms"
+        )
+    notes.extend(pooled_notes)
+    warnings.extend(pooled_warnings)
+    pooled = counts_or_pooled.pop(POOLED)
+    pooled_weighted = weighted_or_pooled.pop(POOLED)
+    counts, weighted = counts_or_pooled, weighted_or_pooled
     reporter.update(STAGE, steps, steps, "done")
     return WeighResult(
         counts=counts,
