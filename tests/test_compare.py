@@ -188,3 +188,24 @@ def test_no_group_columns(tmp_path: Path) -> None:
     result = compare_corpus(answers, weigh_corpus(answers, study, Reporter()), study, Reporter())
     assert any("no group columns" in n for n in result.notes)
     assert {"stability__de", "stability__fr", "stability__pooled", "unmapped_terms"} <= set(result.tables)
+
+
+def test_stability_lists_are_the_keyword_tables(tmp_path: Path) -> None:
+    """The stability of the weigh stage's keyword lists: for mean_weight and doc_share the listed terms,
+    ranks and scores are those of weigh's keyword tables (workbench.core.keywords formulas, recomputed
+    here from respondent-level sums), with the stability columns beside them."""
+    answers = _answers(weights=True)
+    study = _study(tmp_path)
+    study.columns.weight = "w"
+    weighed = weigh_corpus(answers, study, Reporter())
+    result = compare_corpus(answers, weighed, study, Reporter())
+    for unit in ("de", "pooled"):
+        table = result.tables[f"stability__{unit}"]
+        keywords = weighed.keywords[unit]
+        for ranking in ("mean_weight", "doc_share"):
+            ours = table[table["ranking"] == ranking]
+            theirs = keywords[keywords["ranking"] == ranking]
+            assert list(ours["term"]) == list(theirs["term"])
+            np.testing.assert_allclose(ours["score"], theirs[ranking])
+            assert ours["stay_share"].between(0, 1).all()
+            assert (ours["resamples"] == 20).all()

@@ -18,7 +18,9 @@ tagged ``de:preis`` or merged into glossary concepts):
     Per group, the top-k terms by class-based TF-IDF and by mean TF-IDF (see
     :mod:`workbench.core.groups`), each with its bootstrap stability.
 ``stability__<unit>``
-    The unit's top-k terms by share of respondents mentioning, with stability.
+    The unit's top-k lists (the weigh stage's ``mean_weight`` and
+    ``doc_share`` rankings, and the share of respondents mentioning), each
+    term with its bootstrap stability; column ``ranking`` names the list.
 ``concepts_by_language``, ``concept_keyness__<language>__vs_other_languages``,
 ``glossary_problems``, ``unmapped_terms``, ``glossary_proposals``
     Cross-language tables (see :mod:`workbench.core.glossary` and
@@ -238,26 +240,7 @@ def compare_corpus(answers: pd.DataFrame, weighed, study: Study, reporter: Repor
         step += 1
         reporter.update(STAGE, step, steps, f"stability of the top terms in {unit.name}")
         seed_counter += 1
-        table = bootstrap_top_k(
-            unit.respondents.mentions,
-            unit.respondents.weights,
-            unit.respondents.terms,
-            share_score,
-            k=settings.top_k,
-            resamples=settings.bootstrap,
-            seed=[study.study.seed, seed_counter],
-            reporter=reporter,
-        ).drop(columns="group")
-        table.insert(0, "unit", unit.name)
-        table["ranking"] = "share_respondents"
-        result.add(
-            table_name("stability", unit.name),
-            table,
-            f"top {settings.top_k} terms of '{unit.name}' by weighted share of respondents mentioning, with "
-            f"bootstrap stability over respondents ({settings.bootstrap} resamples, seed {study.study.seed}): "
-            "stay_share = share of resamples in which the term stays in the top k; rank_low/rank_high = "
-            "2.5th/97.5th percentile of its rank",
-        )
+        _unit_stability(unit, study, result, seed_counter, reporter)
     step += 1
     reporter.update(STAGE, step, steps, "languages side by side")
     _cross_language(units, study, result)
@@ -266,6 +249,47 @@ def compare_corpus(answers: pd.DataFrame, weighed, study: Study, reporter: Repor
     _kwic_tables(answers, units, study, result)
     reporter.update(STAGE, steps, steps, "done")
     return result
+
+
+# --------------------------------------------------------------------------- stability of a unit's lists
+
+
+def _unit_stability(unit: _Unit, study: Study, result: CompareResult, seed_counter: int, reporter: Reporter) -> None:
+    """Bootstrap stability of the unit's top lists: the weigh stage's two keyword rankings
+    (``mean_weight``, ``doc_share``, same formulas and ``weigh.top_k``, so the listed terms are those of
+    the keyword tables) and the share of respondents mentioning (``compare.top_k``)."""
+    settings = study.compare
+    rc = unit.respondents
+    lists: list[tuple[str, sp.csr_matrix, np.ndarray | None, int]] = [
+        ("share_respondents", rc.mentions, None, settings.top_k)
+    ]
+    if unit.weighted is not None and unit.weighted.shape == unit.counts.matrix.shape:
+        summed, answers_per = unit.tfidf_by_respondent()
+        present = sp.csr_matrix(unit.counts.matrix, dtype=np.float64, copy=True)
+        present.data = (present.data > 0).astype(np.float64)
+        # Per respondent: how many of their answers hold the term; ÷ answers = the answer-level share.
+        holding = sp.csr_matrix(unit.collapse @ present)
+        lists.insert(0, ("doc_share", holding, answers_per, study.weigh.top_k))
+        lists.insert(0, ("mean_weight", summed, answers_per, study.weigh.top_k))
+    frames = []
+    for number, (ranking, matrix, denominators, k) in enumerate(lists):
+        table = bootstrap_top_k(
+            matrix, rc.weights, rc.terms, share_score, k=k, resamples=settings.bootstrap,
+            seed=[study.study.seed, seed_counter, number], denominators=denominators, reporter=reporter,
+        ).drop(columns="group")  # fmt: skip
+        table.insert(0, "ranking", ranking)
+        frames.append(table)
+    table = pd.concat(frames, ignore_index=True)
+    table.insert(0, "unit", unit.name)
+    result.add(
+        table_name("stability", unit.name),
+        table,
+        f"top terms of '{unit.name}' with bootstrap stability over respondents ({settings.bootstrap} resamples, "
+        f"seed {study.study.seed}); ranking mean_weight and doc_share are the weigh stage's keyword rankings "
+        f"(top {study.weigh.top_k}: weighted mean TF-IDF over answers, weighted share of answers holding the term), "
+        f"share_respondents the weighted share of respondents mentioning (top {settings.top_k}); stay_share = share "
+        "of resamples in which the term stays in the top k; rank_low/rank_high = 2.5th/97.5th percentile of its rank",
+    )
 
 
 # --------------------------------------------------------------------------- one grouping in one unit
