@@ -12,8 +12,10 @@ Stages exchange two pandas tables:
     ``question`` (the text column's name), ``source``, ``row``, ``raw_text``
     (never modified after ingest), then the columns each stage adds:
 
-    clean:    ``clean_text``, ``masks`` (list of ``(type, start, end)`` over the
-              raw text), ``flags`` (list of reason codes), ``duplicate_of``
+    clean:    ``clean_text`` (personal data already replaced by placeholders such
+              as ``⟨email⟩``), ``masks`` (list of ``(type, start, end)``: where
+              each placeholder stands in ``clean_text``), ``flags`` (list of
+              reason codes), ``duplicate_of``
               (answer id or ``None``), ``enters_weighting`` (bool)
     identify: ``language`` (code or ``"und"``), ``confidence`` (float in [0, 1]),
               ``language_source`` (``detector`` / ``hint`` / ``default`` /
