@@ -280,12 +280,30 @@ def test_ragged_records_are_fitted_to_the_header(tmp_path):
     assert_accounted(corpus, ledger)
 
 
-def test_ragged_record_after_several_chunks_loses_and_repeats_nothing(tmp_path):
+def spy_on_fallback(monkeypatch) -> list[int]:
+    """Record where the csv-module fallback starts (0 = from the first record)."""
+    from workbench.core.readers import delimited
+
+    starts: list[int] = []
+    real = delimited._tolerant_chunks
+
+    def spy(*args):
+        starts.append(args[-1])
+        return real(*args)
+
+    monkeypatch.setattr(delimited, "_tolerant_chunks", spy)
+    monkeypatch.setattr(delimited, "MIN_BLOCK", 64)  # many small parser blocks
+    return starts
+
+
+def test_ragged_record_after_several_chunks_loses_and_repeats_nothing(tmp_path, monkeypatch):
+    starts = spy_on_fallback(monkeypatch)
     lines = ["id,q"] + [f"{i},answer {i}" for i in range(1, 40)]
     lines[33] += ",surplus"
     lines.insert(10, "   ")  # whitespace-only line: no record
     (tmp_path / "r.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
     corpus, ledger = run(make_study(tmp_path, "r.csv", id="id", text=["q"]), chunk_rows=5)
+    assert len(starts) == 1 and 5 <= starts[0] < 33  # resumed mid-file
     assert corpus.respondents[RESPONDENT_ID].tolist() == [str(i) for i in range(1, 40)]
     assert corpus.respondents[ROW].tolist() == list(range(1, 40))
     assert events(ledger, "row", "ragged_row").key.tolist() == ["33"]
@@ -324,15 +342,14 @@ def test_cell_over_one_megabyte_is_truncated_and_flagged(tmp_path):
 def test_record_longer_than_a_parser_block_switches_parser_without_loss(tmp_path, monkeypatch):
     """pyarrow's streaming reader cannot parse a record longer than its block; reading goes on with
     the csv module from the next unread record."""
-    from workbench.core.readers import delimited
-
-    monkeypatch.setattr(delimited, "MIN_BLOCK", 512)
+    starts = spy_on_fallback(monkeypatch)
     lines = ["id,q"] + [f"{i},short {i}" for i in range(1, 30)]
     lines[20] = f'20,"{"long text, " * 600}"'
     (tmp_path / "l.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
     corpus, ledger = run(make_study(tmp_path, "l.csv", id="id", text=["q"]), chunk_rows=3)
     assert corpus.respondents[RESPONDENT_ID].tolist() == [str(i) for i in range(1, 30)]
     assert corpus.answers[RAW_TEXT].str.len().tolist()[19] == len("long text, " * 600)
+    assert len(starts) == 1 and 0 < starts[0] < 20
     assert_accounted(corpus, ledger)
 
 

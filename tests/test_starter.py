@@ -175,3 +175,22 @@ def test_peek_does_not_hash_or_scan_the_whole_file(tmp_path):
     study, _ = guess_study(tmp_path / "s.csv")
     assert study["columns"]["id"] == "respondent_id"
     assert Path(study["sources"][0]["path"]).name == "s.csv"
+
+
+@pytest.mark.parametrize("data", ["lanternmoth_passenger_survey.csv", "lanternmoth_passenger_survey.xlsx", "lanternmoth_autumn_batch_cp1252.csv"])
+def test_guesses_match_the_hand_written_demo_studies(data):
+    """The demo studies in demo_texts/ were written by hand, independently of the guesser; init on
+    their data must propose the same column roles and the same set of expected languages."""
+    from workbench.core.settings import read_study_table
+
+    demo = Path(__file__).resolve().parents[1] / "demo_texts"
+    written = {
+        study["sources"][0]["path"]: study
+        for study in (read_study_table(p) for p in sorted(demo.glob("*.study.toml")))
+    }[data]
+    guessed, _lines = guess_study(demo / data)
+    assert guessed["columns"] == written["columns"]
+    # the guess lists the interview languages present; the authors may expect a few more
+    guessed_languages = set(guessed["languages"]["expected"])
+    assert guessed_languages <= set(written["languages"]["expected"])
+    assert guessed_languages >= {"de", "fr", "nl", "en"}

@@ -42,7 +42,7 @@ from __future__ import annotations
 
 import gc
 from collections import Counter
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from itertools import repeat
@@ -230,9 +230,47 @@ def _strings(values: object) -> pd.Series:
 
 
 def _chunk_into(parts: _Parts, chunk: Chunk, roles: Roles, label: str, multi: bool, report: ImportReport, tally: Counter) -> None:
+    """Take one chunk of records into ``parts``: problems, cells, ids, answers and copied values."""
     frame = chunk.frame
     n = len(frame)
-    rows = chunk.rows
+    start = parts.count
+    _take_problems(parts, chunk, label, report, tally)
+    report.rows += n
+    if n == 0:
+        return
+    for _key, name in roles.named():
+        if name not in frame.columns:  # JSON Lines: a key absent from every object of this chunk
+            frame[name] = ""
+    cut_lengths = _truncate(parts, frame, roles, start, tally)
+    ids, missing = _ids(frame, chunk.rows, roles, label, multi)
+    any_text = _take_answers(parts, frame, roles, start, cut_lengths, tally)
+    weight = _weights(parts, frame, roles, start, tally)
+    if roles.hint:
+        hint = frame[roles.hint].str.strip().str.lower()
+        hint = hint.where(hint.str.len() > 0).reset_index(drop=True)
+    else:
+        hint = pd.Series(np.full(n, np.nan), dtype=str)
+    for name in roles.groups:
+        values = frame[name].str.strip()
+        parts.groups.setdefault(name, []).append(values.where(values.str.len() > 0).reset_index(drop=True))
+
+    keep = [c for c in frame.columns if c not in roles.text]
+    originals = frame[keep].reset_index(drop=True)
+    originals.columns = [f"column:{c}" if c in _RESERVED else c for c in keep]
+    if label not in parts.labels:
+        parts.labels.append(label)
+    parts.label_of_chunk.append(parts.labels.index(label))
+    parts.originals.append(originals)
+    parts.ids.append(ids)
+    parts.missing.append(missing)
+    parts.rows.append(chunk.rows.astype(np.int64))
+    parts.no_text.append(~any_text)
+    parts.weights.append(weight)
+    parts.hints.append(hint)
+    parts.count += n
+
+
+def _take_problems(parts: _Parts, chunk: Chunk, label: str, report: ImportReport, tally: Counter) -> None:
     start = parts.count
     for problem in chunk.problems:
         tally[problem.code] += 1
@@ -244,42 +282,45 @@ def _chunk_into(parts: _Parts, chunk: Chunk, roles: Roles, label: str, multi: bo
                                   problem.status, problem.code, problem.message))
         else:
             parts.flags.append((_delivered(parts, label, problem.row), problem.code, problem.message))
-    report.rows += n
-    if n == 0:
-        return
-    for _key, name in roles.named():
-        if name not in frame.columns:  # JSON Lines: a key absent from every object of this chunk
-            frame[name] = ""
 
-    # over-long cells: truncate, remember for the ledger
+
+def _truncate(parts: _Parts, frame: pd.DataFrame, roles: Roles, start: int, tally: Counter) -> dict[str, np.ndarray]:
+    """Cut cells over MAX_CELL_CHARS; return the original lengths of cut text cells (0 = not cut)."""
     cut_lengths: dict[str, np.ndarray] = {}
     for name in frame.columns:
         lengths = frame[name].str.len().to_numpy(dtype=np.int64, na_value=0)
         over = lengths > MAX_CELL_CHARS
-        if over.any():
-            frame.loc[over, name] = frame.loc[over, name].str.slice(0, MAX_CELL_CHARS)
-            tally["cell_truncated"] += int(over.sum())
-            if name in roles.text:
-                cut_lengths[name] = np.where(over, lengths, 0)
-            else:
-                for index in np.flatnonzero(over).tolist():
-                    parts.flags.append((start + index, "cell_truncated",
-                                        f"cell '{name}' held {lengths[index]:,} characters; kept the first {MAX_CELL_CHARS:,}"))
+        if not over.any():
+            continue
+        frame.loc[over, name] = frame.loc[over, name].str.slice(0, MAX_CELL_CHARS)
+        tally["cell_truncated"] += int(over.sum())
+        if name in roles.text:
+            cut_lengths[name] = np.where(over, lengths, 0)
+        else:
+            for index in np.flatnonzero(over).tolist():
+                parts.flags.append((start + index, "cell_truncated",
+                                    f"cell '{name}' held {lengths[index]:,} characters; kept the first {MAX_CELL_CHARS:,}"))
+    return cut_lengths
 
-    # ids
+
+def _ids(frame: pd.DataFrame, rows: np.ndarray, roles: Roles, label: str, multi: bool) -> tuple[pd.Series, np.ndarray]:
+    """Respondent ids before de-duplication, and which were blank (and generated)."""
     if roles.id is None:
         ids = _strings(pa.array(rows).cast(pa.large_string()))
-        if multi:
-            ids = f"{label}:" + ids
-        missing = np.zeros(n, dtype=bool)
-    else:
-        ids = frame[roles.id].fillna("").str.strip().reset_index(drop=True)
-        missing = (ids.str.len() == 0).to_numpy(dtype=bool)
-        if missing.any():
-            prefix = f"{label}:row-" if multi else "row-"
-            ids[missing] = [f"{prefix}{r}" for r in rows[missing].tolist()]
+        return (f"{label}:" + ids if multi else ids), np.zeros(len(frame), dtype=bool)
+    ids = frame[roles.id].fillna("").str.strip().reset_index(drop=True)
+    missing = (ids.str.len() == 0).to_numpy(dtype=bool)
+    if missing.any():
+        prefix = f"{label}:row-" if multi else "row-"
+        ids[missing] = [f"{prefix}{r}" for r in rows[missing].tolist()]
+    return ids, missing
 
-    # answers: per question, then interleaved into input order (record, then question)
+
+def _take_answers(
+    parts: _Parts, frame: pd.DataFrame, roles: Roles, start: int, cut_lengths: dict[str, np.ndarray], tally: Counter
+) -> np.ndarray:
+    """Collect the non-empty text cells in input order (record, then question); return which records had any."""
+    n = len(frame)
     any_text = np.zeros(n, dtype=bool)
     positions, questions, texts, cuts = [], [], [], []
     for name in roles.text:
@@ -307,50 +348,32 @@ def _chunk_into(parts: _Parts, chunk: Chunk, roles: Roles, label: str, multi: bo
         parts.a_q.append(q)
         parts.a_text.append(text.reset_index(drop=True))
         parts.a_cut.append(cut)
+    return any_text
 
-    # weight, hint, groups
-    if roles.weight:
-        raw = frame[roles.weight].fillna("").str.strip()
-        try:  # Arrow's parser is ~20x faster than pandas' and enough when every value is a plain number
-            weight = pc.cast(pa.array(raw, type=pa.large_string()), pa.float64()).to_numpy(zero_copy_only=False).copy()
-        except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
-            weight = pd.to_numeric(raw, errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan, copy=True)
-        unread = np.isnan(weight)
-        if unread.any():
-            comma = unread & raw.str.fullmatch(_DECIMAL_COMMA).to_numpy(dtype=bool, na_value=False)
-            if comma.any():
-                weight[comma] = pd.to_numeric(raw[comma].str.replace(",", ".", regex=False), errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
-                tally["decimal_comma"] += int(comma.sum())
-            for index in np.flatnonzero(np.isnan(weight)).tolist():
-                value = raw.iloc[index]
-                text_ = "is blank" if not value else f"{value[:40]!r} is not a number"
-                parts.flags.append((start + index, "bad_weight",
-                                    f"weight in column '{roles.weight}' {text_}; left empty (NaN) for the weigh stage"))
-    else:
-        weight = np.ones(n, dtype=np.float64)
-    if roles.hint:
-        hint = frame[roles.hint].str.strip().str.lower()
-        hint = hint.where(hint.str.len() > 0).reset_index(drop=True)
-    else:
-        hint = pd.Series(np.full(n, np.nan), dtype=str)
-    for name in roles.groups:
-        values = frame[name].str.strip()
-        parts.groups.setdefault(name, []).append(values.where(values.str.len() > 0).reset_index(drop=True))
 
-    keep = [c for c in frame.columns if c not in roles.text]
-    originals = frame[keep].reset_index(drop=True)
-    originals.columns = [f"column:{c}" if c in _RESERVED else c for c in keep]
-    if label not in parts.labels:
-        parts.labels.append(label)
-    parts.label_of_chunk.append(parts.labels.index(label))
-    parts.originals.append(originals)
-    parts.ids.append(ids)
-    parts.missing.append(missing)
-    parts.rows.append(rows.astype(np.int64))
-    parts.no_text.append(~any_text)
-    parts.weights.append(weight)
-    parts.hints.append(hint)
-    parts.count += n
+def _weights(parts: _Parts, frame: pd.DataFrame, roles: Roles, start: int, tally: Counter) -> np.ndarray:
+    """Weights as floats; a decimal comma is read as a decimal; anything else unreadable is NaN and flagged."""
+    if not roles.weight:
+        return np.ones(len(frame), dtype=np.float64)
+    raw = frame[roles.weight].fillna("").str.strip()
+    try:  # Arrow's parser is far faster than pandas' and enough when every value is a plain number
+        weight = pc.cast(pa.array(raw, type=pa.large_string()), pa.float64()).to_numpy(zero_copy_only=False).copy()
+    except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+        weight = pd.to_numeric(raw, errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan, copy=True)
+    unread = np.isnan(weight)
+    if not unread.any():
+        return weight
+    comma = unread & raw.str.fullmatch(_DECIMAL_COMMA).to_numpy(dtype=bool, na_value=False)
+    if comma.any():
+        fixed = pd.to_numeric(raw[comma].str.replace(",", ".", regex=False), errors="coerce")
+        weight[comma] = fixed.to_numpy(dtype=np.float64, na_value=np.nan)
+        tally["decimal_comma"] += int(comma.sum())
+    for index in np.flatnonzero(np.isnan(weight)).tolist():
+        value = raw.iloc[index]
+        problem = "is blank" if not value else f"{value[:40]!r} is not a number"
+        parts.flags.append((start + index, "bad_weight",
+                            f"weight in column '{roles.weight}' {problem}; left empty (NaN) for the weigh stage"))
+    return weight
 
 
 def _delivered(parts: _Parts, label: str, row: int) -> int:
@@ -367,18 +390,22 @@ def _delivered(parts: _Parts, label: str, row: int) -> int:
     raise AssertionError(f"reader referred to record {row} of {label}, which was never delivered")
 
 
-def _unique_ids(ids: pd.Series, sources: np.ndarray, rows: np.ndarray) -> tuple[pd.Series, list[tuple[int, str, str]]]:
-    """Make ids unique: the first record keeps its id, later ones get ``#2``, ``#3`` ... (skipping taken ones)."""
-    repeated = ids.duplicated(keep=False).to_numpy(dtype=bool)
-    if not repeated.any():
-        return ids, []
-    taken = set(ids.tolist())
+def _unique_ids(keys: list[str], sources: np.ndarray, rows: np.ndarray) -> tuple[list[int], list[tuple[int, str, str]]]:
+    """Make ``keys`` unique in place: the first record keeps its id, later ones get ``#2``, ``#3`` ...
+
+    Suffixes already taken by another record are skipped. Returns the changed
+    positions and their ledger flags.
+    """
+    taken = set(keys)
+    if len(taken) == len(keys):
+        return [], []
+    repeated = pd.Series(keys, dtype=object).duplicated(keep=False).to_numpy()
     first_at: dict[str, int] = {}
     next_suffix: dict[str, int] = {}
     changed: list[int] = []
-    new_ids: list[str] = []
     flags = []
-    for position, base in zip(np.flatnonzero(repeated).tolist(), ids[repeated].tolist()):
+    for position in np.flatnonzero(repeated).tolist():
+        base = keys[position]
         if base not in first_at:
             first_at[base] = position
             continue
@@ -389,46 +416,43 @@ def _unique_ids(ids: pd.Series, sources: np.ndarray, rows: np.ndarray) -> tuple[
             candidate = f"{base}#{number}"
         next_suffix[base] = number + 1
         taken.add(candidate)
+        keys[position] = candidate
         changed.append(position)
-        new_ids.append(candidate)
         original = first_at[base]
         flags.append((position, "duplicate_id",
                       f"respondent id '{base}' was already used by record {rows[original]} of {sources[original]}; "
                       f"this record's id became '{candidate}' so its answers stay separate"))
-    final = ids.copy()
-    final.iloc[changed] = new_ids
-    return final, flags
+    return changed, flags
 
 
 def _assemble(parts: _Parts, roles_by_label: dict[str, Roles], ledger: Ledger) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Join the chunks into the two tables and write the ledger; ``parts`` is emptied on the way."""
     if not parts.ids:
         raise InputError("the study's sources hold no records")
-    counts = [len(r) for r in parts.rows]
-    codes = np.repeat(np.asarray(parts.label_of_chunk, dtype=np.int64), counts)
-    label_objects = np.array(parts.labels, dtype=object)
-    sources = label_objects[codes]  # shares the label strings, no per-row copies
+    codes = np.repeat(np.asarray(parts.label_of_chunk, dtype=np.int64), [len(r) for r in parts.rows])
+    sources = np.array(parts.labels, dtype=object)[codes]  # shares the label strings, no per-row copies
     rows = np.concatenate(parts.rows)
     ids = pd.concat(parts.ids, ignore_index=True)
-    final, dup_flags = _unique_ids(ids, sources, rows)
+    parts.ids.clear()
+    keys = ids.tolist()
+    changed, dup_flags = _unique_ids(keys, sources, rows)
+    final = ids.copy()
+    if changed:
+        final.iloc[changed] = [keys[p] for p in changed]
     final_arrow = pa.array(final, type=pa.large_string())
     source_arrow = pc.take(pa.array(parts.labels, type=pa.large_string()), pa.array(codes))
-
     respondents = pd.concat(
         [pd.DataFrame({RESPONDENT_ID: _strings(final_arrow), SOURCE: _strings(source_arrow), ROW: rows}),
          pd.concat(parts.originals, ignore_index=True)],
         axis=1,
     )
+    parts.originals.clear()
 
-    if parts.a_pos:
-        pos = np.concatenate(parts.a_pos)
-        q = np.concatenate(parts.a_q)
-        cut = np.concatenate(parts.a_cut)
-        text = pd.concat(parts.a_text, ignore_index=True)
-    else:
-        pos = np.empty(0, dtype=np.int64)
-        q = np.empty(0, dtype=np.int32)
-        cut = np.empty(0, dtype=np.int64)
-        text = pd.Series([], dtype=str)
+    pos = np.concatenate(parts.a_pos) if parts.a_pos else np.empty(0, dtype=np.int64)
+    q = np.concatenate(parts.a_q) if parts.a_q else np.empty(0, dtype=np.int32)
+    cut = np.concatenate(parts.a_cut) if parts.a_cut else np.empty(0, dtype=np.int64)
+    text = pd.concat(parts.a_text, ignore_index=True) if parts.a_text else pd.Series([], dtype=str)
+    parts.a_text.clear()
     names = list(parts.questions)
     take = pa.array(pos)
     respondent = pc.take(final_arrow, take)
@@ -444,39 +468,52 @@ def _assemble(parts: _Parts, roles_by_label: dict[str, Roles], ledger: Ledger) -
         WEIGHT: np.concatenate(parts.weights)[pos],
         HINT: pd.concat(parts.hints, ignore_index=True).iloc[pos].reset_index(drop=True),
     })
+    del text
+    parts.hints.clear()
     for name, pieces in parts.groups.items():
         answers[group_column(name)] = pd.concat(pieces, ignore_index=True).iloc[pos].reset_index(drop=True)
+        pieces.clear()
 
-    # ledger: one base event per record, then one flagged event per problem
-    keys = final.tolist()
-    source_list = sources.tolist()
-    numbers = rows.tolist()
-    no_text = np.concatenate(parts.no_text)
-    pick = no_text.astype(np.int64)
-    row_codes = np.array(["read", "no_text"], dtype=object)[pick].tolist()
-    row_messages = np.array(["read", "kept as a respondent; every text column is empty"], dtype=object)[pick].tolist()
-    with _no_gc():
-        ledger.extend(list(zip(repeat("row"), keys, source_list, numbers, repeat(STAGE), repeat("kept"), row_codes, row_messages)))
+    # rows: one base event each, the dropped ones, then one flagged event per problem
+    _emit(ledger, "row", lambda lo, hi: keys[lo:hi], sources, rows, np.concatenate(parts.no_text).astype(np.intp),
+          np.array(["read", "no_text"], dtype=object),
+          np.array(["read", "kept as a respondent; every text column is empty"], dtype=object))
     ledger.extend(parts.dropped)
     flags = list(parts.flags) + dup_flags
-    missing = np.concatenate(parts.missing)
-    for position in np.flatnonzero(missing).tolist():
-        column = roles_by_label[source_list[position]].id
+    for position in np.flatnonzero(np.concatenate(parts.missing)).tolist():
+        column = roles_by_label[sources[position]].id
         flags.append((position, "missing_id",
-                      f"record {numbers[position]} has no id in column '{column}'; given the id '{ids.iloc[position]}'"))
+                      f"record {rows[position]} has no id in column '{column}'; given the id '{ids.iloc[position]}'"))
     flags.sort(key=lambda f: f[0])
-    ledger.extend([("row", keys[p], source_list[p], numbers[p], STAGE, "flagged", code, message) for p, code, message in flags])
+    ledger.extend([("row", keys[p], sources[p], int(rows[p]), STAGE, "flagged", code, message) for p, code, message in flags])
 
-    a_keys = answers[ANSWER_ID].tolist()
-    a_sources = sources[pos].tolist()
-    a_rows = rows[pos].tolist()
-    a_messages = np.array([f"read from column '{name}'" for name in names], dtype=object)[q].tolist() if names else []
-    with _no_gc():
-        ledger.extend(list(zip(repeat("answer"), a_keys, a_sources, a_rows, repeat(STAGE), repeat("kept"), repeat("read"), a_messages)))
+    # answers: one base event each, then the truncated ones
+    _emit(ledger, "answer", lambda lo, hi: answer_ids.slice(lo, hi - lo).to_pylist(), sources[pos], rows[pos], q,
+          np.array(["read"] * len(names), dtype=object),
+          np.array([f"read from column '{name}'" for name in names], dtype=object))
     for index in np.flatnonzero(cut).tolist():
-        ledger.answer(a_keys[index], a_sources[index], a_rows[index], STAGE, "flagged", "cell_truncated",
-                      f"answer held {cut[index]:,} characters; kept the first {MAX_CELL_CHARS:,}")
+        ledger.answer(answer_ids[index].as_py(), sources[pos[index]], int(rows[pos[index]]), STAGE, "flagged",
+                      "cell_truncated", f"answer held {cut[index]:,} characters; kept the first {MAX_CELL_CHARS:,}")
     return respondents, answers
+
+
+#: Ledger events are built this many at a time, so the temporary lists stay small.
+_SLICE = 200_000
+
+
+def _emit(
+    ledger: Ledger, level: str, keys: Callable[[int, int], list[str]], sources: np.ndarray, rows: np.ndarray,
+    pick: np.ndarray, codes: np.ndarray, messages: np.ndarray,
+) -> None:
+    """One ``kept`` event per entity; ``codes[pick[i]]`` and ``messages[pick[i]]`` describe entity i."""
+    with _no_gc():
+        for lo in range(0, len(rows), _SLICE):
+            hi = min(lo + _SLICE, len(rows))
+            chosen = pick[lo:hi]
+            ledger.extend(list(zip(
+                repeat(level), keys(lo, hi), sources[lo:hi].tolist(), rows[lo:hi].tolist(), repeat(STAGE),
+                repeat("kept"), codes[chosen].tolist(), messages[chosen].tolist(),
+            )))
 
 
 # --------------------------------------------------------------------------- the stage
