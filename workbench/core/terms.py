@@ -223,6 +223,8 @@ class LanguageTermer:
         self.overrides = resolve_overrides(layers, language)
         self._info: dict[str, Unit | None] = {}
         self._rule: dict[str, str] = {}
+        self._chunk_units: dict[str, tuple[Unit, ...]] = {}
+        self._chunk_rules: dict[str, tuple[str, ...]] = {}
         self.stop_list: StopList = effective_stop_list(
             language, profile, settings, decisions, self.normalise, base=stop_base
         )
@@ -327,27 +329,64 @@ class LanguageTermer:
                 flags = CONTENT
             self._info[key] = (lower, term, flags)
 
-    def units(self, keys: Sequence[str]) -> list[Unit]:
+    def _prepare_chunks(self, chunks: set[str]) -> None:
+        """Tokenise new whitespace-delimited chunks and store their units.
+
+        spaCy's rule-based tokenizer never joins or splits across white space
+        (that is why it caches per chunk itself), so tokenising each distinct
+        chunk once gives exactly the tokens of tokenising whole texts, without
+        building a ``Doc`` per answer.
+        """
+        tokenizer = self.tokenizer
+        token_lists = {chunk: [t.text for t in tokenizer(chunk)] for chunk in chunks}
         info = self._info
-        return [u for u in map(info.__getitem__, keys) if u is not None]
+        new = {form for forms in token_lists.values() for form in forms if form not in info}
+        if new:
+            self._learn(new)
+        rules, chunk_units, chunk_rules = self._rule, self._chunk_units, self._chunk_rules
+        for chunk, forms in token_lists.items():
+            chunk_units[chunk] = tuple(u for u in map(info.__getitem__, forms) if u is not None)
+            if rules:
+                found = tuple(r for f in forms if (r := rules.get(f)))
+                if found:
+                    chunk_rules[chunk] = found
+
+    def _units_many(self, texts: Sequence[str]) -> tuple[list[list[Unit]], list[list[str]]]:
+        """Units of each text, and the lemma overrides each applied."""
+        if self.pipeline is not None:
+            key_lists = self._keys_of(texts)
+            info = self._info
+            new = {k for keys in key_lists for k in keys if k not in info}
+            if new:
+                self._learn(new)
+            rules = self._rule
+            units = [[u for u in map(info.__getitem__, keys) if u is not None] for keys in key_lists]
+            applied = [[r for k in keys if (r := rules.get(k))] if rules else [] for keys in key_lists]
+            return units, applied
+        chunked = [(_space_out(t) if _SPECIAL.search(t) else t).split() for t in texts]
+        chunk_units = self._chunk_units
+        new_chunks = {c for chunks in chunked for c in chunks if c not in chunk_units}
+        if new_chunks:
+            self._prepare_chunks(new_chunks)
+        units = [[u for c in chunks for u in chunk_units[c]] for chunks in chunked]
+        if self._chunk_rules:
+            chunk_rules = self._chunk_rules
+            applied = [[r for c in chunks for r in chunk_rules.get(c, ())] for chunks in chunked]
+        else:
+            applied = [[] for _ in chunked]
+        return units, applied
 
     def terms_many(self, texts: Sequence[str]) -> tuple[list[list[str]], list[list[str]], list[list[str]]]:
         """Per text: its terms, the stop words removed from it, and the lemma overrides applied to it."""
-        key_lists = self._keys_of(texts)
-        info = self._info
-        new = {k for keys in key_lists for k in keys if k not in info}
-        if new:
-            self._learn(new)
-        max_n, expressions, rules = self.settings.ngrams, self.expressions, self._rule
-        all_terms, all_stops, all_rules = [], [], []
-        for keys in key_lists:
-            units = [u for u in map(info.__getitem__, keys) if u is not None]
+        unit_lists, applied = self._units_many(texts)
+        max_n, expressions = self.settings.ngrams, self.expressions
+        all_terms, all_stops = [], []
+        for units in unit_lists:
             if expressions:
                 units, _found = expressions.apply(units)
             all_terms.append(assemble(units, max_n))
             all_stops.append([u[1] for u in units if u[2] & STOP])
-            all_rules.append([r for k in keys if (r := rules.get(k))] if rules else [])
-        return all_terms, all_stops, all_rules
+        return all_terms, all_stops, applied
 
     def terms(self, text: str) -> list[str]:
         """Terms of one text (previews; the stage itself batches)."""
@@ -451,9 +490,12 @@ def extract_terms(
     answers = answers.copy()
     languages = answers[LANGUAGE].fillna(UNDETERMINED).astype(str).to_numpy()
     texts = answers[CLEAN_TEXT].fillna("").astype(str).to_numpy()
-    codes, uniques = pd.factorize(pd.MultiIndex.from_arrays([languages, texts]))
-    unique_langs = np.array([u[0] for u in uniques], dtype=object)
-    unique_texts = [u[1] for u in uniques]
+    # One key per (language, text): identical cleaned answers are processed once.
+    keyed = np.fromiter((f"{lang}\x1f{text}" for lang, text in zip(languages, texts)), dtype=object, count=len(texts))
+    codes, uniques = pd.factorize(keyed)
+    split = [u.split("\x1f", 1) for u in uniques]
+    unique_langs = np.array([u[0] for u in split], dtype=object)
+    unique_texts = [u[1] for u in split]
 
     excluded = {k for k, v in decisions.exclude.items() if v}
     enters = answers[ENTERS_WEIGHTING].eq(True).to_numpy()
@@ -517,8 +559,11 @@ def extract_terms(
         for i in np.flatnonzero((unique_langs == lang) & (weight_of_unique > 0)):
             m = int(weight_of_unique[i])
             for counter_tf, counter_df, items in ((tf, df, unique_terms[i]), (stf, sdf, unique_stops[i])):
-                for term, n in Counter(items).items():
-                    counter_tf[term] += n * m
+                if not items:
+                    continue
+                for term in items:
+                    counter_tf[term] += m
+                for term in set(items):
                     counter_df[term] += m
         vocabularies[lang] = _count_table(tf, df)
         stop_hits[lang] = _count_table(stf, sdf)

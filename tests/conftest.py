@@ -1,0 +1,27 @@
+"""Shared fixtures. Keep this file small: one fixture per shared need."""
+
+from __future__ import annotations
+
+from collections.abc import Iterator
+
+import pytest
+
+from workbench.core.profiles import available_languages
+
+
+@pytest.fixture(scope="session", autouse=True)
+def _cache_dir(tmp_path_factory: pytest.TempPathFactory) -> Iterator[None]:
+    """Lemma tables and simplemma tries are built into a temporary cache, never the user's.
+
+    Session-scoped so each table is built once per test run, not once per test.
+    """
+    mp = pytest.MonkeyPatch()
+    mp.setenv("TERMLOOM_CACHE_DIR", str(tmp_path_factory.mktemp("termloom-cache")))
+    yield
+    mp.undo()
+
+
+@pytest.fixture(params=available_languages())
+def lang(request: pytest.FixtureRequest) -> str:
+    """Every language that has a profile folder in ``lang_profiles/``."""
+    return request.param
