@@ -11,7 +11,7 @@ import pytest
 from workbench.core.errors import Cancelled, InputError, SettingsError
 from workbench.core.progress import Reporter
 from workbench.core.settings import study_from_dict
-from workbench.core.weigh import kish_effective_n, weigh_corpus
+from workbench.core.weigh import weigh_corpus
 
 
 def _answers(**extra: list) -> pd.DataFrame:
@@ -96,8 +96,10 @@ def test_survey_weights_enter_n_df_and_kish() -> None:
     assert result.document_frequency["de"][preis] == pytest.approx(2.5)
     assert result.idf["de"][preis] == pytest.approx(np.log((1 + 4.0) / (1 + 2.5)) + 1)
     assert result.effective_n["de"] == pytest.approx(16 / (4 + 0.25 + 2.25))
-    assert result.effective_n["pooled"] == pytest.approx(kish_effective_n(np.array([2.0, 1.0, 0.5, 3.0, 1.5])))
-    assert kish_effective_n(np.ones(7)) == pytest.approx(7)
+    pooled_w = np.array([2.0, 1.0, 0.5, 3.0, 1.5])
+    assert result.effective_n["pooled"] == pytest.approx(pooled_w.sum() ** 2 / (pooled_w**2).sum())
+    unweighted = weigh_corpus(_answers(), _study(), Reporter())
+    assert unweighted.effective_n == {"de": 3.0, "fr": 2.0, "pooled": 5.0}
     assert result.weighted_by == "w" and "sums of weights" in result.describe()
     table = result.keywords["de"].set_index(["ranking", "term"])
     assert table.loc[("doc_share", "preis"), "df"] == 2

@@ -34,6 +34,7 @@ from workbench.core.corpus import ANSWER_ID, ENTERS_WEIGHTING, LANGUAGE, TERMS, 
 from workbench.core.counting import POOLED, count_terms, filter_counts, pool_counts
 from workbench.core.counts import Counts
 from workbench.core.errors import InputError, SettingsError
+from workbench.core.keyness import kish_effective_n
 from workbench.core.keywords import keyword_table
 from workbench.core.progress import Reporter
 from workbench.core.settings import UNDETERMINED, Study
@@ -79,16 +80,6 @@ class WeighResult:
         )
         pooled = "pooled idf uses N over the answers of every language"
         return "\n".join([self.scheme.describe(), self.vocabulary.describe(), weights, pooled])
-
-
-def kish_effective_n(weights: np.ndarray) -> float:
-    """Kish's effective sample size, n_eff = (Σ w_i)² / Σ w_i² (Kish 1965).
-
-    Equals the number of answers when all weights are equal; 0 when all are 0.
-    """
-    w = np.asarray(weights, dtype=np.float64)
-    squares = float(np.dot(w, w))
-    return float(w.sum()) ** 2 / squares if squares > 0 else 0.0
 
 
 # --------------------------------------------------------------------------- input checks
