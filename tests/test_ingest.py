@@ -213,6 +213,9 @@ def test_duplicate_and_missing_ids_are_flagged_and_made_unique(tmp_path):
     assert "already used by record 1 of a.csv" in dup.message.iloc[0] and "'7#3'" in dup.message.iloc[0]
     missing = events(ledger, "row", "missing_id")
     assert missing.key.tolist() == ["row-5"] and "record 5" in missing.message.iloc[0]
+    notes = corpus.reports[0].notes
+    assert any(n.startswith("1 records had no id") for n in notes)
+    assert any(n.startswith("2 records repeat an id used before") for n in notes)
     assert_accounted(corpus, ledger)
 
 

@@ -158,6 +158,14 @@ def test_missing_data_file(tmp_path):
     assert not (tmp_path / "absent.study.toml").exists()
 
 
+def test_header_only_file(tmp_path):
+    (tmp_path / "h.csv").write_text("id,comment\n", encoding="utf-8")
+    with pytest.raises(InputError) as info:
+        write_starter_study(tmp_path / "h.csv")
+    assert "h.csv has a header row but no data rows" in str(info.value)
+    assert not (tmp_path / "h.study.toml").exists()
+
+
 def test_file_without_free_text_says_so(tmp_path):
     pd.DataFrame({"id": range(30), "score": range(30)}).to_csv(tmp_path / "n.csv", index=False)
     study, lines = guess_study(tmp_path / "n.csv")

@@ -242,7 +242,7 @@ def _chunk_into(parts: _Parts, chunk: Chunk, roles: Roles, label: str, multi: bo
         if name not in frame.columns:  # JSON Lines: a key absent from every object of this chunk
             frame[name] = ""
     cut_lengths = _truncate(parts, frame, roles, start, tally)
-    ids, missing = _ids(frame, chunk.rows, roles, label, multi)
+    ids, missing = _ids(frame, chunk.rows, roles, label, multi, tally)
     any_text = _take_answers(parts, frame, roles, start, cut_lengths, tally)
     weight = _weights(parts, frame, roles, start, tally)
     if roles.hint:
@@ -303,7 +303,9 @@ def _truncate(parts: _Parts, frame: pd.DataFrame, roles: Roles, start: int, tall
     return cut_lengths
 
 
-def _ids(frame: pd.DataFrame, rows: np.ndarray, roles: Roles, label: str, multi: bool) -> tuple[pd.Series, np.ndarray]:
+def _ids(
+    frame: pd.DataFrame, rows: np.ndarray, roles: Roles, label: str, multi: bool, tally: Counter
+) -> tuple[pd.Series, np.ndarray]:
     """Respondent ids before de-duplication, and which were blank (and generated)."""
     if roles.id is None:
         ids = _strings(pa.array(rows).cast(pa.large_string()))
@@ -311,6 +313,7 @@ def _ids(frame: pd.DataFrame, rows: np.ndarray, roles: Roles, label: str, multi:
     ids = frame[roles.id].fillna("").str.strip().reset_index(drop=True)
     missing = (ids.str.len() == 0).to_numpy(dtype=bool)
     if missing.any():
+        tally["missing_id"] += int(missing.sum())
         prefix = f"{label}:row-" if multi else "row-"
         ids[missing] = [f"{prefix}{r}" for r in rows[missing].tolist()]
     return ids, missing
@@ -373,6 +376,7 @@ def _weights(parts: _Parts, frame: pd.DataFrame, roles: Roles, start: int, tally
         problem = "is blank" if not value else f"{value[:40]!r} is not a number"
         parts.flags.append((start + index, "bad_weight",
                             f"weight in column '{roles.weight}' {problem}; left empty (NaN) for the weigh stage"))
+        tally["bad_weight"] += 1
     return weight
 
 
@@ -425,8 +429,13 @@ def _unique_ids(keys: list[str], sources: np.ndarray, rows: np.ndarray) -> tuple
     return changed, flags
 
 
-def _assemble(parts: _Parts, roles_by_label: dict[str, Roles], ledger: Ledger) -> tuple[pd.DataFrame, pd.DataFrame]:
-    """Join the chunks into the two tables and write the ledger; ``parts`` is emptied on the way."""
+def _assemble(
+    parts: _Parts, roles_by_label: dict[str, Roles], ledger: Ledger
+) -> tuple[pd.DataFrame, pd.DataFrame, Counter]:
+    """Join the chunks into the two tables and write the ledger; ``parts`` is emptied on the way.
+
+    Also returns how many duplicate ids each source label had.
+    """
     if not parts.ids:
         raise InputError("the study's sources hold no records")
     codes = np.repeat(np.asarray(parts.label_of_chunk, dtype=np.int64), [len(r) for r in parts.rows])
@@ -494,7 +503,7 @@ def _assemble(parts: _Parts, roles_by_label: dict[str, Roles], ledger: Ledger) -
     for index in np.flatnonzero(cut).tolist():
         ledger.answer(answer_ids[index].as_py(), sources[pos[index]], int(rows[pos[index]]), STAGE, "flagged",
                       "cell_truncated", f"answer held {cut[index]:,} characters; kept the first {MAX_CELL_CHARS:,}")
-    return respondents, answers
+    return respondents, answers, Counter(sources[p] for p, _code, _message in dup_flags)
 
 
 #: Ledger events are built this many at a time, so the temporary lists stay small.
@@ -528,6 +537,9 @@ _NOTES = {
     "unclosed_quote": "warning: the last record's text runs to the end of the file; a quoted field probably never closes (ledger code unclosed_quote)",
     "empty_cells": "{n:,} empty text cells (not answers)",
     "decimal_comma": "{n:,} weights written with a decimal comma were read as decimals",
+    "bad_weight": "{n:,} weights are blank or not numbers and were left empty (ledger code bad_weight)",
+    "missing_id": "{n:,} records had no id and were given 'row-<record>' (ledger code missing_id)",
+    "duplicate_id": "{n:,} records repeat an id used before and were given '<id>#2', '<id>#3' ... (ledger code duplicate_id)",
 }
 
 
@@ -614,7 +626,10 @@ def read_corpus(study: Study, ledger: Ledger, reporter: Reporter, *, chunk_rows:
         reports.append(report)
         roles_by_label[label] = roles
     reporter.update(STAGE, done, done, "building the answers table")
-    respondents, answers = _assemble(parts, roles_by_label, ledger)
+    respondents, answers, duplicates = _assemble(parts, roles_by_label, ledger)
+    for report in reports:  # duplicates are only known once every source is in
+        if duplicates[report.source]:
+            report.notes.append(_NOTES["duplicate_id"].format(n=duplicates[report.source]))
     return Corpus(respondents=respondents, answers=answers, reports=reports)
 
 

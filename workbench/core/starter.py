@@ -34,7 +34,7 @@ from typing import Any
 import pandas as pd
 import tomli_w
 
-from workbench.core.errors import OutputError
+from workbench.core.errors import InputError, OutputError
 from workbench.core.ingest import peek_source
 from workbench.core.profiles import available_languages
 from workbench.core.settings import study_from_dict
@@ -173,6 +173,8 @@ def guess_study(data_path: Path) -> tuple[dict[str, Any], list[str]]:
     """
     data_path = Path(data_path)
     frame, report = peek_source(data_path, PEEK_ROWS)
+    if frame.empty:
+        raise InputError(f"{data_path} has a header row but no data rows; init guesses column roles from the answers")
     lines = []
     how = [report.format]
     if report.encoding:

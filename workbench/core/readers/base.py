@@ -105,3 +105,36 @@ def string_frame(records: list[list[str]], names: list[str]) -> pd.DataFrame:
         return pd.DataFrame({name: pd.Series([], dtype=str) for name in names})
     columns = list(zip(*records))
     return pd.DataFrame({name: pa.array(col, type=pa.large_string()).to_pandas() for name, col in zip(names, columns)})
+
+
+def preview(values: list[str], separator: str, limit: int = 80) -> str:
+    """Values joined for a ledger message, cut to ``limit`` characters."""
+    shown = separator.join(values)
+    return shown if len(shown) <= limit else shown[: limit - 3] + "..."
+
+
+class ChunkBuilder:
+    """Collects equal-width records (lists of strings) and hands out a :class:`Chunk` every ``chunk_rows``."""
+
+    def __init__(self, names: list[str], chunk_rows: int) -> None:
+        self.names = names
+        self.chunk_rows = chunk_rows
+        self._records: list[list[str]] = []
+        self._rows: list[int] = []
+        self._problems: list[RowProblem] = []
+
+    def flag(self, row: int, code: str, message: str) -> None:
+        """Flag the record that the next :meth:`add` takes in."""
+        self._problems.append(RowProblem(row, "flagged", code, message, len(self._records)))
+
+    def add(self, record: list[str], row: int) -> Chunk | None:
+        self._records.append(record)
+        self._rows.append(row)
+        return self.flush() if len(self._records) >= self.chunk_rows else None
+
+    def flush(self) -> Chunk | None:
+        if not self._records:
+            return None
+        chunk = Chunk(string_frame(self._records, self.names), np.asarray(self._rows, dtype=np.int64), self._problems)
+        self._records, self._rows, self._problems = [], [], []
+        return chunk

@@ -38,7 +38,7 @@ import pandas as pd
 
 from workbench.core.corpus import ImportReport
 from workbench.core.errors import InputError
-from workbench.core.readers.base import Chunk, Opened, RowProblem, repair_header, string_frame
+from workbench.core.readers.base import Chunk, ChunkBuilder, Opened, RowProblem, preview, repair_header, string_frame
 from workbench.core.readers.encoding import scan_file
 from workbench.core.readers.files import check_readable_file
 from workbench.core.settings import Source
@@ -266,9 +266,7 @@ def _tolerant_chunks(
         # blank and whitespace-only lines are no records (for one column, only blank ones: pyarrow keeps the rest)
         records = (r for r in reader if r and not (width > 1 and len(r) == 1 and not r[0].strip()))
         number = start
-        batch: list[list[str]] = []
-        rows: list[int] = []
-        problems: list[RowProblem] = []
+        builder = ChunkBuilder(names, chunk_rows)
         for record in _decoded(itertools.islice(records, skip + 1 + start, None), path, codec):
             number += 1
             if len(record) < width:
@@ -277,18 +275,12 @@ def _tolerant_chunks(
                 extra = record[width:]
                 del record[width:]
                 if any(field.strip() for field in extra):
-                    shown = delimiter.join(extra)
-                    shown = shown if len(shown) <= 80 else shown[:77] + "..."
-                    problems.append(RowProblem(
-                        number, "flagged", "ragged_row",
+                    builder.flag(
+                        number, "ragged_row",
                         f"record {number} has {width + len(extra)} fields but the header has {width}; "
-                        f"kept the first {width}, dropped {shown!r}",
-                        len(batch),
-                    ))
-            batch.append(record)
-            rows.append(number)
-            if len(batch) >= chunk_rows:
-                yield Chunk(string_frame(batch, names), np.asarray(rows, dtype=np.int64), problems)
-                batch, rows, problems = [], [], []
-        if batch:
-            yield Chunk(string_frame(batch, names), np.asarray(rows, dtype=np.int64), problems)
+                        f"kept the first {width}, dropped {preview(extra, delimiter)!r}",
+                    )
+            if chunk := builder.add(record, number):
+                yield chunk
+        if chunk := builder.flush():
+            yield chunk

@@ -20,11 +20,10 @@ from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
-import numpy as np
 
 from workbench.core.corpus import ImportReport
 from workbench.core.errors import InputError, did_you_mean
-from workbench.core.readers.base import Chunk, Opened, RowProblem, repair_header, string_frame
+from workbench.core.readers.base import Chunk, ChunkBuilder, Opened, preview, repair_header
 from workbench.core.readers.files import check_readable_file, describe_magic, read_head, sha256_of
 from workbench.core.settings import Source
 
@@ -152,9 +151,7 @@ def open_xlsx(source: Source, report: ImportReport, *, chunk_rows: int, full: bo
 def _chunks(book: Any, next_values: Any, names: list[str], chunk_rows: int) -> Iterator[Chunk]:
     width = len(names)
     number = 0
-    batch: list[list[str]] = []
-    rows: list[int] = []
-    problems: list[RowProblem] = []
+    builder = ChunkBuilder(names, chunk_rows)
     try:
         while (values := next_values()) is not None:
             cells = [_text(v) for v in values]
@@ -164,21 +161,14 @@ def _chunks(book: Any, next_values: Any, names: list[str], chunk_rows: int) -> I
             if len(cells) > width:
                 extra = [c for c in cells[width:] if c.strip()]
                 if extra:
-                    shown = " | ".join(extra)
-                    shown = shown if len(shown) <= 80 else shown[:77] + "..."
-                    problems.append(RowProblem(
-                        number, "flagged", "ragged_row",
-                        f"record {number} has values right of the last named column; dropped {shown!r}", len(batch),
-                    ))
+                    builder.flag(number, "ragged_row",
+                                 f"record {number} has values right of the last named column; dropped {preview(extra, ' | ')!r}")
                 del cells[width:]
             elif len(cells) < width:
                 cells.extend([""] * (width - len(cells)))
-            batch.append(cells)
-            rows.append(number)
-            if len(batch) >= chunk_rows:
-                yield Chunk(string_frame(batch, names), np.asarray(rows, dtype=np.int64), problems)
-                batch, rows, problems = [], [], []
-        if batch:
-            yield Chunk(string_frame(batch, names), np.asarray(rows, dtype=np.int64), problems)
+            if chunk := builder.add(cells, number):
+                yield chunk
+        if chunk := builder.flush():
+            yield chunk
     finally:
         book.close()
