@@ -25,7 +25,7 @@ import scipy.sparse as sp
 from workbench.core.counting import count_terms, tag
 from workbench.core.progress import Reporter
 from workbench.core.settings import study_from_dict
-from workbench.core.tfidf import TfidfWeighting, WeightingScheme
+from workbench.core.tfidf import TfidfWeighting, WeightingScheme, document_frequency
 from workbench.core.weigh import weigh_corpus
 
 yaml = pytest.importorskip("yaml")
@@ -84,7 +84,8 @@ SKLEARN_CASES = [
     ({"tf": "raw", "idf": "smooth", "norm": "none"}, {"smooth_idf": True, "norm": None}),
     ({"tf": "binary", "idf": "smooth", "norm": "l2"}, {"smooth_idf": True, "binary": True, "norm": "l2"}),
     ({"tf": "raw", "idf": "none", "norm": "l1"}, {"use_idf": False, "norm": "l1"}),
-    ({"tf": "raw", "idf": "smooth", "norm": "l2", "min_df": 2, "max_df": 0.5}, {"min_df": 2, "max_df": 0.5}),
+    ({"tf": "raw", "idf": "smooth", "norm": "l2", "min_df": 2, "max_df": 0.1}, {"min_df": 2, "max_df": 0.1}),
+    ({"tf": "log", "idf": "smooth", "norm": "l2", "min_df": 0.01, "max_df": 40}, {"sublinear_tf": True, "min_df": 0.01, "max_df": 40}),
 ]
 
 
@@ -93,11 +94,20 @@ def test_per_language_matrices_equal_scikit_learn(sample: pd.DataFrame, ours: di
     """scikit-learn ``TfidfVectorizer`` (sklearn.feature_extraction.text) with equal settings, per language: matrices equal to 1e-12.
 
     Covers smoothed idf, sublinear tf (1 + ln tf), binary tf, l1/l2/no
-    normalisation, no idf, and min_df (count) / max_df (share) filters.
+    normalisation, no idf, and min_df / max_df filters as counts and as
+    shares (each max_df case does remove terms: checked).
     """
     from sklearn.feature_extraction.text import TfidfVectorizer
 
     result = weigh_corpus(sample, _study(**ours), Reporter())
+    if "max_df" in ours:
+        # The case must exercise the upper bound: some language has terms above it.
+        above = 0
+        for language, group in sample.groupby("language"):
+            df = document_frequency(count_terms(group["terms"].tolist(), group["answer_id"].tolist(), language).matrix)
+            bound = ours["max_df"] * len(group) if isinstance(ours["max_df"], float) else ours["max_df"]
+            above += int((df > bound).sum())
+        assert above > 0
     for language, group in sample.groupby("language"):
         vectorizer = TfidfVectorizer(analyzer=lambda terms: terms, dtype=np.float64, **theirs)
         reference = vectorizer.fit_transform(group["terms"].tolist())
