@@ -4,8 +4,10 @@ Stages exchange two pandas tables:
 
 ``respondents`` — one row per kept input row:
     ``respondent_id`` (str), ``source`` (str), ``row`` (int, 1-based record
-    number in its source), then every original column under its own name
-    (group columns, weight, language hint...).
+    number in its source), then every original column except the text
+    columns (their text is ``answers.raw_text``) under its own name (group
+    columns, weight, language hint...), as strings; an original column named
+    ``respondent_id``, ``source`` or ``row`` is kept as ``column:<name>``.
 
 ``answers`` — one row per non-empty text cell, in input order:
     ``answer_id`` (str, ``"<respondent_id>|<question>"``), ``respondent_id``,
@@ -23,7 +25,9 @@ Stages exchange two pandas tables:
     terms:    ``terms`` (list of str, in order)
 
 Group, weight and hint values are copied onto the answers as
-``group:<column>``, ``weight`` and ``hint`` so later stages need only one table.
+``group:<column>``, ``weight`` and ``hint`` so later stages need only one table
+(groups and hint: str, missing = NA; weight: float, 1.0 without a weight column,
+NaN where the value is not a number).
 """
 
 from __future__ import annotations
