@@ -101,7 +101,7 @@ def test_top_terms_uses_the_first_ranking_of_a_long_keyword_table() -> None:
 def test_concept_matrix_from_a_long_table() -> None:
     table = pd.DataFrame({"concept": ["price", "price", "staff"], "language": ["en", "de", "en"], "share": [0.3, 0.2, 0.1]})
     xlabel, wide = concept_matrix({"concepts": table})
-    assert xlabel == "share of answers"
+    assert xlabel == "share of respondents mentioning"
     assert wide.loc["price", "de"] == 0.2 and np.isnan(wide.loc["staff", "de"])
     assert concept_matrix({"keyness": table}) is None
 

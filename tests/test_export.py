@@ -255,7 +255,8 @@ def test_spreadsheets_open_with_openpyxl(written: tuple[RunOutputs, Path, list[P
     """openpyxl reads the workbooks: a contents sheet, frozen headers, neutralised text, numeric numbers."""
     run, out, _files = written
     book = openpyxl.load_workbook(out / "keywords" / "keywords.xlsx")
-    assert book.sheetnames == ["contents", "de", "el", "en", "pooled"]
+    assert book.sheetnames == ["contents", *run.weighed.keywords]
+    assert set(run.weighed.keywords) == {"de", "el", "en", "pooled"}
     sheet = book["en"]
     assert sheet.freeze_panes == "A2"
     header = [c.value for c in sheet[1]]
@@ -270,14 +271,18 @@ def test_spreadsheets_open_with_openpyxl(written: tuple[RunOutputs, Path, list[P
 
 
 def test_charts_exist_per_language_group_and_concepts(written: tuple[RunOutputs, Path, list[Path]]) -> None:
-    _run, out, _files = written
+    run, out, _files = written
     names = sorted(p.name for p in (out / "charts").iterdir())
     for language in ("de", "el", "en", "pooled"):
         assert f"keywords-{language}.png" in names and f"keywords-{language}.svg" in names
-    assert any(n.startswith("keywords-country-DE-") for n in names)
+    groups = [t for n, t in run.compared.tables.items() if n.startswith("group_keywords")]
+    charted = {str(g) for frame in groups for g in frame["group"].unique()}
+    assert charted, "the compare stage wrote no group keyword table"
+    for group in charted - {"../../etc"}:
+        assert f"keywords-country-{group}.png" in names and f"keywords-country-{group}.svg" in names
     assert "concepts.png" in names
     # The group value "../../etc" becomes a plain file name inside charts/.
-    assert "keywords-country-etc-pooled.png" in names
+    assert "keywords-country-etc.png" in names
     assert all(p.parent == out / "charts" for p in (out / "charts").iterdir())
     assert not (out.parent / "etc").exists()
 
@@ -372,7 +377,7 @@ def test_dense_csv_too_large_fails_before_writing(run: RunOutputs, tmp_path: Pat
     out = tmp_path / "dense"
     with pytest.raises(OutputError, match=r"would hold .* cells, above export.dense_limit = 4"):
         write_run(out, run, Reporter())
-    assert [p for p in out.rglob("*") if p.is_file()] == []
+    assert not out.exists()
 
 
 def test_dense_csv_written_when_small(run: RunOutputs, tmp_path: Path) -> None:
@@ -391,13 +396,16 @@ def test_cancel_stops_without_a_manifest(run: RunOutputs, tmp_path: Path) -> Non
 
     def callback(stage: str, done: int, total: int, message: str) -> None:
         seen.append(message)
-        if message == "corpus":
+        if message == "writing respondents":
             reporter.cancel.set()
 
     reporter.callback = callback
     out = tmp_path / "cancelled"
     with pytest.raises(Cancelled):
         write_run(out, run, reporter)
+    assert seen[:3] == ["writing the ledger", "writing the corpus", "writing respondents"]
+    # The step under way when the user cancelled finishes; the next one does not start.
+    assert (out / "corpus" / "respondents.dta").exists() and not (out / "matrices").exists()
     assert not (out / MANIFEST_NAME).exists()
     assert list(out.rglob(f"{TEMP_PREFIX}*")) == []
 

@@ -28,7 +28,7 @@ that did not run writes nothing)::
       compare.xlsx                a "contents" sheet (full names, descriptions), one sheet per table
     charts/
       keywords-<lang>.png/.svg    top keywords per language and pooled
-      keywords-<grouping>-<group>-<unit>.png/.svg   top keywords of each group
+      keywords-<grouping>-<group>.png/.svg   top keywords of each group (in its main language)
       concepts.png/.svg           concepts across languages (with a glossary)
 
 File names made from table names, languages or group values are sanitised by
@@ -181,7 +181,7 @@ def _previous_files(out_dir: Path) -> set[str]:
 
 
 class _Sink:
-    """Collects what the export wrote and the notes it made, and reports progress."""
+    """Collects what the export wrote and the notes it made; knows the requested formats."""
 
     def __init__(self, root: Path, formats: Iterable[str], reporter: Reporter, total: int) -> None:
         self.root = root
@@ -190,7 +190,6 @@ class _Sink:
         self.files: list[Path] = []
         self.notes: list[str] = []
         self.total = total
-        self.done = 0
 
     def wants(self, *formats: str) -> bool:
         return bool(self.formats.intersection(formats))
@@ -206,10 +205,6 @@ class _Sink:
     def add(self, path: Path, notes: Iterable[str] = ()) -> None:
         self.files.append(path)
         self.notes.extend(notes)
-
-    def step(self, message: str) -> None:
-        self.done += 1
-        self.reporter.update(STAGE, min(self.done, self.total), self.total, message)
 
 
 # --------------------------------------------------------------------------- entry point
@@ -237,39 +232,35 @@ def write_run(out_dir: Path, run: RunOutputs, reporter: Reporter) -> list[Path]:
         requested dense CSV would be too large. Temporary files are removed.
     """
     begin = time.perf_counter()
-    study = run.study
-    settings = study.export
-    out_dir = prepare_folder(Path(out_dir))
     _check_dense_sizes(run)
+    out_dir = prepare_folder(Path(out_dir))
     previous = _previous_files(out_dir)
-    sink = _Sink(out_dir, settings.formats, reporter, total=8)
-    reporter.update(STAGE, 0, sink.total, f"writing to {out_dir}")
+    answers = _answers_for_export(run)
+    table_notes = getattr(run.compared, "table_notes", None) if run.compared is not None else None
+    steps: list[tuple[str, Callable[[_Sink], None]]] = [
+        ("the ledger", lambda sink: _write_ledger(sink, run)),
+        ("the corpus", lambda sink: _write_corpus(sink, answers)),
+        ("respondents", lambda sink: _write_respondents(sink, run, answers)),
+        ("matrices", lambda sink: _write_matrices(sink, run)),
+        ("term tables", lambda sink: _write_table_group(sink, "terms", _term_tables(run))),
+        ("keyword tables", lambda sink: _write_table_group(sink, "keywords", _keyword_tables(run))),
+        ("compare tables", lambda sink: _write_table_group(sink, "compare", _compare_tables(run), dict(table_notes or {}))),
+        ("charts", lambda sink: _write_charts(sink, run)),
+    ]
+    sink = _Sink(out_dir, run.study.export.formats, reporter, total=len(steps) + 1)
     try:
-        _write_ledger(sink, run)
-        sink.step("ledger")
-        answers = _answers_for_export(run)
-        _write_corpus(sink, answers)
-        sink.step("corpus")
-        _write_respondents(sink, run, answers)
-        sink.step("respondents")
-        _write_matrices(sink, run)
-        sink.step("matrices")
-        _write_table_group(sink, "terms", _term_tables(run))
-        _write_table_group(sink, "keywords", _keyword_tables(run))
-        sink.step("terms and keywords")
-        table_notes = getattr(run.compared, "table_notes", None) if run.compared is not None else None
-        _write_table_group(sink, "compare", _compare_tables(run), dict(table_notes or {}))
-        sink.step("compare tables")
-        _write_charts(sink, run)
-        sink.step("charts")
+        for number, (label, write) in enumerate(steps):
+            reporter.update(STAGE, number, sink.total, f"writing {label}")
+            write(sink)
+        reporter.update(STAGE, len(steps), sink.total, "writing the manifest")
         written = {p.resolve().relative_to(out_dir.resolve()).as_posix() for p in sink.files}
         removed = _remove_stale(out_dir, previous - written - {MANIFEST_NAME})
         content = run_content(run, sink.notes, removed, time.perf_counter() - begin)
         manifest = write_manifest(out_dir, content, sink.files)
-        sink.step("manifest")
     except OSError as exc:
         where = Path(exc.filename) if getattr(exc, "filename", None) else out_dir
         raise OutputError(describe_os_error(exc, where)) from None
+    reporter.update(STAGE, sink.total, sink.total, f"wrote {len(sink.files) + 1} files")
     return [*sink.files, manifest]
 
 
@@ -604,31 +595,48 @@ def _write_table_group(
 
 # --------------------------------------------------------------------------- charts
 
-#: Above this many per-group charts only the pooled unit's are drawn (the tables keep everything).
-MAX_GROUP_CHARTS = 60
+#: At most this many per-group charts are drawn (the group_keywords tables hold every group).
+MAX_GROUP_CHARTS = 40
 
 
 def _group_charts(tables: dict[str, pd.DataFrame], top_k: int, notes: list[str]) -> list[tuple[str, Any]]:
-    """One bar chart per group of every ``group_keywords__*`` table (its first ranking)."""
-    found = []
+    """One bar chart per group of every grouping, from the ``group_keywords__*`` tables.
+
+    A group appears in one table per unit (each language, and the pooled
+    corpus when compare writes it). The chart uses the pooled table when there
+    is one (glossary pooling: concepts meet across languages), otherwise the
+    language in which the group has the most respondents (``n_group``; ties
+    by language code). The other lists stay in the tables. Each chart shows
+    the table's first ranking.
+    """
+    best: dict[tuple[str, str], tuple[tuple[int, int, str], pd.DataFrame, str]] = {}
     for name, frame in tables.items():
-        if not name.startswith("group_keywords") or "group" not in frame.columns:
+        if not name.startswith("group_keywords") or "group" not in frame.columns or not len(frame):
             continue
-        grouping = str(frame["grouping"].iloc[0]) if "grouping" in frame.columns and len(frame) else name
-        unit = str(frame["unit"].iloc[0]) if "unit" in frame.columns and len(frame) else ""
+        unit = str(frame["unit"].iloc[0]) if "unit" in frame.columns else POOLED
+        grouping = str(frame["grouping"].iloc[0]) if "grouping" in frame.columns else name
         for group, part in frame.groupby(frame["group"].astype(str), sort=True):
-            top = top_terms(part, top_k)
-            if top is not None and top[0]:
-                title = f"Top keywords — {grouping} = {group}" + (f" ({unit})" if unit else "")
-                found.append((unit, f"keywords-{grouping}-{group}-{unit}", top, title))
+            size = int(part["n_group"].max()) if "n_group" in part.columns else 0
+            # Pooled first, then more respondents, then the smaller code; negate for max().
+            rank = (int(unit == POOLED), size, "".join(chr(0x10FFFF - ord(c)) for c in unit))
+            key = (grouping, group)
+            if key not in best or rank > best[key][0]:
+                best[key] = (rank, part, unit)
+    found = []
+    for (grouping, group), (rank, part, unit) in sorted(best.items()):
+        top = top_terms(part, top_k)
+        if top is None or not top[0]:
+            continue
+        where = "all languages" if unit == POOLED else unit
+        size = f", {rank[1]:,} respondents" if rank[1] else ""
+        found.append((f"keywords-{grouping}-{group}", _bar(top, f"Top keywords — {grouping} = {group} ({where}{size})")))
     if len(found) > MAX_GROUP_CHARTS:
-        kept = [f for f in found if f[0] == POOLED]
         notes.append(
-            f"{len(found)} group keyword charts would be drawn; only the {len(kept)} of the pooled corpus "
-            "were (the group_keywords tables hold every group and language)"
+            f"{len(found)} groups have keywords; charts were drawn for the first {MAX_GROUP_CHARTS} "
+            "(the group_keywords tables hold every group)"
         )
-        found = kept
-    return [(stem, _bar(top, title)) for _unit, stem, top, title in found]
+        found = found[:MAX_GROUP_CHARTS]
+    return found
 
 
 def _write_charts(sink: _Sink, run: RunOutputs) -> None:

@@ -24,6 +24,7 @@ from __future__ import annotations
 import csv
 import dataclasses
 import datetime as _dt
+import functools
 import json
 import math
 import re
@@ -304,25 +305,66 @@ def write_xlsx(
     return path, notes
 
 
+def _fit_strings(cells: list[Any]) -> int:
+    """Cut over-long strings in place (see :func:`fit_cell`); returns how many were cut."""
+    cut = 0
+    for position, value in enumerate(cells):
+        if isinstance(value, str) and len(value) > EXCEL_MAX_CELL_CHARS // 2:
+            cells[position], was_cut = fit_cell(value)
+            cut += was_cut
+    return cut
+
+
+def _column_cells(series: pd.Series) -> tuple[str, list[Any], int]:
+    """One column ready to write: its kind, its cells (``None`` = empty) and how many were cut.
+
+    Preparing whole columns keeps the per-cell loop to one call into XlsxWriter.
+    """
+    dtype = series.dtype
+    if pd.api.types.is_bool_dtype(dtype):
+        return "bool", series.astype(object).where(series.notna(), None).tolist(), 0
+    if pd.api.types.is_numeric_dtype(dtype):
+        values = series.to_numpy(dtype=np.float64, na_value=np.nan)
+        cells: list[Any] = values.tolist()
+        for position in np.flatnonzero(np.isnan(values)):
+            cells[position] = None
+        # Infinities are written as text by the mixed-cell writer.
+        return ("number" if not np.isinf(values).any() else "mixed"), cells, 0
+    cells = series.tolist()
+    cut = _fit_strings(cells)
+    kind = "text" if all(v is None or isinstance(v, str) for v in cells) else "mixed"
+    return kind, cells, cut
+
+
 def _write_sheets(
     workbook: Any, bold: Any, name: str, frame: pd.DataFrame, sheets: list[str], per_sheet: int
 ) -> list[str]:
     safe = spreadsheet_frame(frame)
     headers = [str(c) for c in safe.columns]
-    cut = 0
+    columns = [_column_cells(safe.iloc[:, col]) for col in range(safe.shape[1])]
+    cut = sum(c[2] for c in columns)
     for chunk, title in enumerate(sheets):
-        part = safe.iloc[chunk * per_sheet : (chunk + 1) * per_sheet]
+        start, stop = chunk * per_sheet, min((chunk + 1) * per_sheet, len(safe))
         sheet = workbook.add_worksheet(title)
+        writers = {
+            "bool": sheet.write_boolean,
+            "number": sheet.write_number,
+            "text": sheet.write_string,
+            "mixed": functools.partial(_write_cell, sheet),
+        }
         for col, header in enumerate(headers):
-            sheet.set_column(col, col, _width(part.iloc[:200, col].tolist(), header))
-        for col, header in enumerate(headers):
+            sheet.set_column(col, col, _width(columns[col][1][start : start + 200], header))
             sheet.write_string(0, col, header, bold)
-        for r, row in enumerate(part.itertuples(index=False, name=None), start=1):
-            for col, value in enumerate(row):
-                cut += _write_cell(sheet, r, col, value)
+        plan = [(col, writers[kind], cells) for col, (kind, cells, _cut) in enumerate(columns)]
+        for r in range(start, stop):
+            row = r - start + 1
+            for col, write, cells in plan:
+                value = cells[r]
+                if value is not None:
+                    write(row, col, value)
         sheet.freeze_panes(1, 0)
         if headers:
-            sheet.autofilter(0, 0, max(len(part), 1), len(headers) - 1)
+            sheet.autofilter(0, 0, max(stop - start, 1), len(headers) - 1)
     if cut:
         return [
             f"table '{name}': {cut} cell(s) longer than {EXCEL_MAX_CELL_CHARS:,} characters were cut in the "
@@ -331,27 +373,22 @@ def _write_sheets(
     return []
 
 
-def _write_cell(sheet: Any, row: int, col: int, value: Any) -> int:
+def _write_cell(sheet: Any, row: int, col: int, value: Any) -> None:
+    """One cell of a mixed column: by the value's own type."""
     if value is None or value is pd.NA or value is pd.NaT:
-        return 0
+        return
     if isinstance(value, (bool, np.bool_)):
         sheet.write_boolean(row, col, bool(value))
-        return 0
-    if isinstance(value, (int, float, np.integer, np.floating)):
+    elif isinstance(value, (int, float, np.integer, np.floating)):
         number = float(value)
-        if math.isnan(number):
-            return 0
         if math.isinf(number):
             sheet.write_string(row, col, "inf" if number > 0 else "\u2212inf")
-            return 0
-        sheet.write_number(row, col, number)
-        return 0
-    if isinstance(value, (pd.Timestamp, _dt.datetime, _dt.date)):
+        elif not math.isnan(number):
+            sheet.write_number(row, col, number)
+    elif isinstance(value, (pd.Timestamp, _dt.datetime, _dt.date)):
         sheet.write_string(row, col, value.isoformat())
-        return 0
-    text, was_cut = fit_cell(str(value))
-    sheet.write_string(row, col, text)
-    return int(was_cut)
+    else:
+        sheet.write_string(row, col, fit_cell(str(value))[0])  # strings were fitted already; others now
 
 
 # --------------------------------------------------------------------------- Stata
