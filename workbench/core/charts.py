@@ -123,6 +123,16 @@ def _new_figure(labels: Sequence[str], rows: float, legend: bool = False) -> tup
     return figure, figure.add_subplot()
 
 
+def _finish_axes(axes: Any, positions: np.ndarray, labels: list[str], title: str, xlabel: str) -> None:
+    """Labels top-down, axis title, chart title and a light vertical grid behind the bars."""
+    axes.set_yticks(positions, labels)
+    axes.invert_yaxis()
+    axes.set_xlabel(xlabel)
+    axes.set_title(textwrap.shorten(title, 90), loc="left", fontsize=11)
+    axes.grid(axis="x", alpha=0.3)
+    axes.set_axisbelow(True)
+
+
 def keyword_chart(terms: Sequence[str], values: Sequence[float], title: str, xlabel: str) -> Figure:
     """Horizontal bars of ``values`` per term, largest at the top.
 
@@ -135,12 +145,7 @@ def keyword_chart(terms: Sequence[str], values: Sequence[float], title: str, xla
         figure, axes = _new_figure(labels, len(terms))
         positions = np.arange(len(terms))
         axes.barh(positions, np.asarray(values, dtype=float), color=_BAR, height=0.7)
-        axes.set_yticks(positions, labels)
-        axes.invert_yaxis()
-        axes.set_xlabel(xlabel)
-        axes.set_title(textwrap.shorten(title, 90), loc="left", fontsize=11)
-        axes.grid(axis="x", alpha=0.3)
-        axes.set_axisbelow(True)
+        _finish_axes(axes, positions, labels, title, xlabel)
         if not len(terms):
             axes.text(0.5, 0.5, "no terms", ha="center", va="center", transform=axes.transAxes)
     return figure
@@ -169,12 +174,7 @@ def concept_chart(table: pd.DataFrame, title: str, xlabel: str) -> Figure:
                 label=language,
                 color=_PALETTE[number % len(_PALETTE)],
             )
-        axes.set_yticks(base, labels)
-        axes.invert_yaxis()
-        axes.set_xlabel(xlabel)
-        axes.set_title(textwrap.shorten(title, 90), loc="left", fontsize=11)
-        axes.grid(axis="x", alpha=0.3)
-        axes.set_axisbelow(True)
+        _finish_axes(axes, base, labels, title, xlabel)
         if languages:
             axes.legend(title="language", loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize=8, title_fontsize=8, frameon=False)
     return figure

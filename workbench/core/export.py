@@ -66,12 +66,22 @@ from workbench.core.atomic import TEMP_PREFIX, atomic_path, describe_os_error, r
 from workbench.core.charts import concept_chart, concept_matrix, keyword_chart, save_figure_as, top_terms
 from workbench.core.errors import InputError, OutputError
 from workbench.core.manifest import MANIFEST_NAME, read_manifest, run_content, write_manifest
-from workbench.core.matrices import check_dense, write_dense_csv, write_lines, write_long_parquet, write_mtx, write_npz
+from workbench.core.matrices import (
+    check_dense,
+    load_matrix,
+    write_dense_csv,
+    write_lines,
+    write_long_parquet,
+    write_mtx,
+    write_npz,
+)
 from workbench.core.progress import Reporter
 from workbench.core.tables import to_jsonable, write_csv, write_json_table, write_stata, write_xlsx
 
 if TYPE_CHECKING:
     from workbench.core.pipeline import RunOutputs
+
+__all__ = ["load_matrix", "safe_name", "write_run"]
 
 STAGE = "export"
 POOLED = "pooled"
