@@ -192,10 +192,8 @@ def memory(n_answers: int) -> None:
     print(f"Part 2 - whole weigh stage on {report['answers']:,} answers, five languages, survey weights")
     print(f"  pooled matrix {report['pooled_shape'][0]:,} x {report['pooled_shape'][1]:,}, {report['pooled_nnz']:,} non-zeros")
     print(f"  stage time                          {report['seconds']:.1f} s")
-    previous = 0.0
     for message, at in report["steps"]:
         print(f"    {message:<24} starts at {at:6.1f} s")
-        previous = at
     print(f"  RSS before the stage (input table)  {report['rss_before'] / mib:,.0f} MiB")
     print(f"  RSS peak during the stage           {report['rss_peak_stage'] / mib:,.0f} MiB  (budget 2,048 MiB for a whole run)")
     print(f"  stage's own peak (tracemalloc)      {report['traced_peak_bytes'] / mib:,.0f} MiB")

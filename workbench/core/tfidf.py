@@ -53,8 +53,15 @@ SMART letters (Manning, Raghavan & Schütze 2008, Fig. 6.15):
     tf:    ``n`` raw, ``l`` log, ``a`` augmented, ``b`` binary, ``L`` logave
     idf:   ``n`` none, ``t`` log (log N/df), ``p`` prob
     norm:  ``n`` none, ``c`` cosine (l2)
-Other systems give the letters other formulas (gensim's ``t`` is
-log2((N + 1) / df), its ``f`` is log2(N / df)); see ``describe()``.
+Other systems give the letters other formulas. gensim 4.4 ``TfidfModel``
+(``smartirs``): every logarithm is base 2; its ``t`` is log2((N + 1) / df)
+and its ``f`` is log2(N / df) (= our ``t`` in base 2); its ``x`` aliases
+``n``; ``d`` (double log) and the pivoted norms ``u``/``b`` have no
+counterpart here. Its default (``smartirs=None``) is raw tf × log2(N / df),
+L2. gensim also leaves out of its output every entry whose idf is within
+1e-12 of 0 (a term in every document) and every normalised weight within
+1e-12 of 0; our matrices store no zero entries either but keep every term's
+column.
 """
 
 from __future__ import annotations
@@ -170,10 +177,10 @@ class WeightingScheme:
         The SMART letters the scheme was parsed from, if any (for ``describe``).
     """
 
-    tf: str = "raw"
-    idf: str = "smooth"
-    norm: str = "l2"
-    base: str = "e"
+    tf: TfKind = "raw"
+    idf: IdfKind = "smooth"
+    norm: NormKind = "l2"
+    base: Base = "e"
     idf_add: float = 0.0
     smart: str | None = field(default=None, compare=False)
 

@@ -31,7 +31,7 @@ import pandas as pd
 import scipy.sparse as sp
 
 from workbench.core.corpus import ANSWER_ID, ENTERS_WEIGHTING, LANGUAGE, TERMS, WEIGHT
-from workbench.core.counting import POOLED, count_terms, filter_counts, pool_counts
+from workbench.core.counting import POOLED, FilterReport, count_terms, filter_counts, pool_counts
 from workbench.core.counts import Counts
 from workbench.core.errors import InputError, SettingsError
 from workbench.core.keyness import kish_effective_n
@@ -189,7 +189,7 @@ def _weigh_one(
     return weighted, weighting
 
 
-def _filter_warnings(report, label: str, warnings: list[str], notes: list[str]) -> None:
+def _filter_warnings(report: FilterReport, label: str, warnings: list[str], notes: list[str]) -> None:
     notes.append(f"{label}: {report.terms_after:,} of {report.terms_before:,} terms kept by the vocabulary filter")
     if report.only_zero_weight:
         warnings.append(
@@ -305,23 +305,6 @@ def weigh_corpus(
             "check the terms stage (stop words, terms.min_length, terms.keep_numbers)"
         )
 
-    idf: dict[str, np.ndarray] = {}
-    keywords: dict[str, pd.DataFrame] = {}
-    effective_n: dict[str, float] = {}
-    n_documents: dict[str, float] = {}
-    document_frequency: dict[str, np.ndarray] = {}
-
-    def keep(name: str, filtered: Counts, matrix: sp.csr_matrix, weighting: TfidfWeighting) -> None:
-        counts_or_pooled[name] = filtered
-        weighted_or_pooled[name] = matrix
-        idf[name] = weighting.idf_
-        n_documents[name] = weighting.n_documents_
-        document_frequency[name] = weighting.df_
-        effective_n[name] = kish_effective_n(filtered.weights)
-        keywords[name] = keyword_table(filtered, matrix, weighting.idf_, settings.top_k, df_weighted=weighting.df_)
-
-    counts_or_pooled: dict[str, Counts] = {}
-    weighted_or_pooled: dict[str, sp.csr_matrix] = {}
     distinct_terms = sum(c.matrix.shape[1] for c in unfiltered.values())
 
     # The pooled matrix first: it is built from the unfiltered language counts,
@@ -342,24 +325,32 @@ def weigh_corpus(
         pooled_notes.append(f"the pooled matrix has {merged:,} glossary concepts; other terms keep their language tags")
     step += 1
     reporter.update(STAGE, step, steps, "weighting pooled")
-    pooled_weighted, weighting = _weigh_one(pooled, scheme, "the pooled matrix", pooled_warnings)
-    keep(POOLED, pooled, pooled_weighted, weighting)
+    pooled_weighted, pooled_weighting = _weigh_one(pooled, scheme, "the pooled matrix", pooled_warnings)
+    pooled_keywords = keyword_table(
+        pooled, pooled_weighted, pooled_weighting.idf_, settings.top_k, df_weighted=pooled_weighting.df_
+    )
     pooled_notes.append(
-        f"pooled idf uses N = {weighting.n_documents_:,.6g} over the answers of {len(languages)} "
+        f"pooled idf uses N = {pooled_weighting.n_documents_:,.6g} over the answers of {len(languages)} "
         "languages: a tagged term keeps its df but N grows"
     )
     step += 1
 
+    counts: dict[str, Counts] = {}
+    weighted: dict[str, sp.csr_matrix] = {}
+    fitted: dict[str, TfidfWeighting] = {}
+    keywords: dict[str, pd.DataFrame] = {}
     for language in languages:
         reporter.update(STAGE, step, steps, f"weighting {language}")
         label = f"language '{language}'"
-        filtered, report = filter_counts(unfiltered.pop(language), vocabulary)
+        counts[language], report = filter_counts(unfiltered.pop(language), vocabulary)
         _filter_warnings(report, label, warnings, notes)
-        matrix, weighting = _weigh_one(filtered, scheme, label, warnings)
-        keep(language, filtered, matrix, weighting)
+        weighted[language], fitted[language] = _weigh_one(counts[language], scheme, label, warnings)
+        keywords[language] = keyword_table(
+            counts[language], weighted[language], fitted[language].idf_, settings.top_k, df_weighted=fitted[language].df_
+        )
         step += 1
 
-    if all(counts_or_pooled[lang].matrix.shape[1] == 0 for lang in languages):
+    if all(c.matrix.shape[1] == 0 for c in counts.values()):
         raise InputError(
             f"no terms remain after filters: all {distinct_terms:,} distinct terms of {len(selected):,} answers "
             f"were removed ({vocabulary.describe()}); lower weigh.min_df (now {settings.min_df}), raise "
@@ -367,20 +358,21 @@ def weigh_corpus(
         )
     notes.extend(pooled_notes)
     warnings.extend(pooled_warnings)
-    pooled = counts_or_pooled.pop(POOLED)
-    pooled_weighted = weighted_or_pooled.pop(POOLED)
-    counts, weighted = counts_or_pooled, weighted_or_pooled
+    fitted[POOLED] = pooled_weighting
+    keywords[POOLED] = pooled_keywords
+    effective_n = {lang: kish_effective_n(c.weights) for lang, c in counts.items()}
+    effective_n[POOLED] = kish_effective_n(pooled.weights)
     reporter.update(STAGE, steps, steps, "done")
     return WeighResult(
         counts=counts,
         weighted=weighted,
         pooled=pooled,
         pooled_weighted=pooled_weighted,
-        idf=idf,
+        idf={name: f.idf_ for name, f in fitted.items()},
         keywords=keywords,
         effective_n=effective_n,
-        n_documents=n_documents,
-        document_frequency=document_frequency,
+        n_documents={name: f.n_documents_ for name, f in fitted.items()},
+        document_frequency={name: f.df_ for name, f in fitted.items()},
         scheme=scheme,
         vocabulary=vocabulary,
         weighted_by=weighted_by,
