@@ -63,7 +63,7 @@ def test_stratified_resampling_keeps_group_sizes() -> None:
     seen: list[np.ndarray] = []
 
     def score(sums: np.ndarray, totals: np.ndarray) -> np.ndarray:
-        seen.append(totals.copy())
+        seen.extend(np.atleast_2d(totals).copy())  # one row per resample of the batch
         return share_score(sums, totals)
 
     bootstrap_top_k(m, np.ones(n), np.array(["t", "u"], dtype=object), score, k=1, resamples=30, seed=1,

@@ -225,16 +225,12 @@ def compare_corpus(answers: pd.DataFrame, weighed, study: Study, reporter: Repor
             f"one line per keyness table; significant = Benjamini–Hochberg adjusted p < {settings.fdr}; "
             + _counting_words(counting),
         )
-    pooled_tagged = study.weigh.pooled != "glossary"
-    result.findings.extend(
-        _findings([t for t in all_tables if t[2] != POOLED or not pooled_tagged])
-        or _findings(all_tables)
-    )
-    if pooled_tagged and any(t[2] == POOLED for t in all_tables):
+    result.findings.extend(_findings(all_tables, study.languages.expected))
+    if any(t[2] == POOLED for t in all_tables):
         result.notes.append(
-            "pooled keyness compares language-tagged terms (de:preis): a grouping that follows language "
-            "(e.g. country) mostly shows language differences there; the per-language tables and the concept "
-            "tables are the fair comparison"
+            "pooled keyness: terms outside the glossary keep their language tag (de:preis), so a grouping that "
+            "follows language (e.g. country) shows language differences there; glossary concepts, the "
+            "per-language tables and the concept tables are the fair comparison"
         )
     for unit in units:
         step += 1
@@ -455,24 +451,38 @@ def _group_keywords(
     )
 
 
-def _findings(all_tables: list[tuple[str, str, str, KeynessTable]], limit: int = 6) -> list[str]:
+def _findings(all_tables: list[tuple[str, str, str, KeynessTable]], languages: list[str], limit: int = 8) -> list[str]:
+    """The strongest significant over-representations, one per group first, as sentences.
+
+    Pooled tables contribute only glossary concepts: a language-tagged pooled
+    term (``de:preis``) mostly tells which language a group writes in.
+    """
+    tagged = tuple(f"{lang}:" for lang in languages)
     rows = []
     for name, grouping, unit, kt in all_tables:
-        significant = kt.table[kt.table["significant"] & (kt.table["direction"] == "over")]
-        for _, row in significant.head(2).iterrows():
+        table = kt.table[kt.table["significant"] & (kt.table["direction"] == "over")]
+        if unit == POOLED:
+            table = table[~table["term"].astype(str).str.startswith(tagged)]
+        for _, row in table.head(3).iterrows():
             rows.append((float(row["g2"]), name, grouping, unit, kt, row))
     rows.sort(key=lambda r: -r[0])
+    first_per_group = {}
+    for entry in rows:
+        first_per_group.setdefault((entry[2], str(entry[4].target)), entry)
+    ordered = sorted(first_per_group.values(), key=lambda r: -r[0])
+    ordered += [r for r in rows if r not in ordered]
     out: list[str] = []
     seen: set[tuple[str, str, float]] = set()
-    for g2, name, grouping, unit, kt, row in rows:
+    for g2, name, grouping, unit, kt, row in ordered:
         # A combination that equals one of its parts in a unit gives the same table twice.
         key = (unit, str(row["term"]), round(g2, 6))
         if key in seen or len(out) >= limit:
             continue
         seen.add(key)
         against = "the rest" if kt.reference is None else f"'{kt.reference}'"
+        where = "all languages, glossary concept" if unit == POOLED else f"answers in '{unit}'"
         out.append(
-            f"{grouping} = '{kt.target}' ({unit}): '{row['term']}' is used by {row['share_group']:.0%} of "
+            f"{grouping} = '{kt.target}' ({where}): '{row['term']}' is mentioned by {row['share_group']:.0%} of "
             f"respondents vs {row['share_ref']:.0%} in {against} (G² = {g2:.1f}, adjusted p = {row['p_adj']:.2g}, "
             f"Log Ratio = {row['log_ratio']:+.2f}) [{name}]"
         )

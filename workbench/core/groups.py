@@ -107,13 +107,17 @@ def groupings(answers: pd.DataFrame, columns: list[str], combinations: list[list
 
 
 def class_tfidf(sums: np.ndarray) -> np.ndarray:
-    """c-TF-IDF of a ``(classes, terms)`` frequency array (formula in the module docstring)."""
+    """c-TF-IDF of a ``(classes, terms)`` frequency array (formula in the module docstring).
+
+    A leading batch axis ``(batch, classes, terms)`` is allowed: each batch
+    entry is computed on its own (the bootstrap passes many resamples at once).
+    """
     sums = np.asarray(sums, dtype=np.float64)
-    per_class = sums.sum(axis=1)
-    f_t = sums.sum(axis=0)
-    average = per_class.mean() if len(per_class) else 0.0
+    per_class = sums.sum(axis=-1, keepdims=True)
+    f_t = sums.sum(axis=-2, keepdims=True)
+    average = per_class.mean(axis=-2, keepdims=True) if sums.shape[-2] else np.zeros_like(per_class)
     with np.errstate(divide="ignore", invalid="ignore"):
-        tf = np.where(per_class[:, None] > 0, sums / per_class[:, None], 0.0)
+        tf = np.where(per_class > 0, sums / per_class, 0.0)
         idf = np.where(f_t > 0, np.log1p(average / f_t), 0.0)
     return tf * idf
 

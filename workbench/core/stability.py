@@ -20,6 +20,8 @@ product per group: the multiplicities ``m`` (how often each respondent was
 drawn) times the respondent weights, multiplied into the group's block of the
 respondent × term matrix, give the group's resampled column sums
 (``counts = (w · m) @ M``), one pass over the block's non-zero entries.
+Resamples are processed in batches (a dense ``(members, batch)`` matrix of
+multiplicities), so the Python overhead does not grow with their number.
 """
 
 from __future__ import annotations
@@ -33,14 +35,15 @@ import scipy.sparse as sp
 from workbench.core.keyness import label_codes
 from workbench.core.progress import Reporter
 
-#: ``score(sums, totals) -> scores``: ``sums`` is ``(groups, terms)``, ``totals`` ``(groups,)``.
+#: ``score(sums, totals) -> scores``: ``sums`` is ``(..., groups, terms)``, ``totals`` ``(..., groups)``;
+#: the leading axis, when present, runs over a batch of resamples.
 ScoreFunction = Callable[[np.ndarray, np.ndarray], np.ndarray]
 
 
 def share_score(sums: np.ndarray, totals: np.ndarray) -> np.ndarray:
-    """Weighted share: column sum ÷ the group's Σ w (share of respondents mentioning, or mean weight)."""
+    """Weighted share: column sum ÷ the group's total (share of respondents mentioning, or mean weight)."""
     with np.errstate(divide="ignore", invalid="ignore"):
-        return np.where(totals[:, None] > 0, sums / totals[:, None], 0.0)
+        return np.where(totals[..., None] > 0, sums / totals[..., None], 0.0)
 
 
 def top_k_indices(scores: np.ndarray, terms: np.ndarray, k: int) -> list[np.ndarray]:
@@ -127,31 +130,46 @@ def bootstrap_top_k(
     d_sorted = np.ones(len(members)) if denominators is None else np.asarray(denominators, dtype=np.float64)[members]
     mx = sp.csr_matrix(matrix, dtype=np.float64)[members]
     ends = starts + sizes
-    # One transposed block per group: a resample's column sums of group g are then one
-    # sparse matrix-vector product, block_g @ (w · m), a single pass over the block's entries.
+    n_groups, n_terms, n_members = len(names), mx.shape[1], len(members)
+    # One transposed block per group: the column sums of group g for a whole batch of
+    # resamples are one sparse × dense product, block_g @ (w · m)ᵀ, a single pass over
+    # the block's entries per resample, with no Python loop over resamples.
     blocks = [sp.csr_matrix(mx[a:b].T) for a, b in zip(starts, ends, strict=True)]
-    n_terms = mx.shape[1]
+    onehot = np.zeros((n_members, n_groups))
+    onehot[np.arange(n_members), g_sorted] = 1.0
 
     def evaluate(multiplicity: np.ndarray) -> np.ndarray:
+        """Scores ``(batch, groups, terms)`` for multiplicities ``(batch, members)``."""
         wm = w_sorted * multiplicity
-        sums = np.empty((len(names), n_terms))
+        sums = np.empty((len(wm), n_groups, n_terms))
         for g, (a, b) in enumerate(zip(starts, ends, strict=True)):
-            sums[g] = blocks[g] @ wm[a:b]
-        totals = np.bincount(g_sorted, weights=wm * d_sorted, minlength=len(names))
+            sums[:, g, :] = np.asarray(blocks[g] @ wm[:, a:b].T).T
+        totals = (wm * d_sorted) @ onehot
         return score(sums, totals)
 
-    original = evaluate(np.ones(len(members)))
+    original = evaluate(np.ones((1, n_members)))[0]
     picks = top_k_indices(original, terms, k)
     ranks = [np.empty((resamples, len(p)), dtype=np.int64) for p in picks]
     rng = np.random.default_rng(seed)
-    for r in range(resamples):
-        if reporter is not None and r % 20 == 0:
-            reporter.update("compare", r, resamples, "bootstrap stability")
+    # Resamples per batch: bounded so the score array and the rank comparisons stay small.
+    batch = int(max(1, min(resamples, 4_000_000 // max(1, n_groups * n_terms))))
+    for first in range(0, resamples, batch):
+        if reporter is not None:
+            reporter.update("compare", first, resamples, "bootstrap stability")
+        size = min(batch, resamples - first)
         # Uniform draw within each respondent's own group: stratified bootstrap.
-        draws = starts[g_sorted] + np.floor(rng.random(len(members)) * sizes[g_sorted]).astype(np.int64)
-        multiplicity = np.bincount(draws, minlength=len(members)).astype(np.float64)
-        for g, rank in enumerate(competition_ranks(evaluate(multiplicity), picks)):
-            ranks[g][r] = rank
+        draws = starts[g_sorted] + np.floor(rng.random((size, n_members)) * sizes[g_sorted]).astype(np.int64)
+        flat = (draws + (np.arange(size) * n_members)[:, None]).ravel()
+        multiplicity = np.bincount(flat, minlength=size * n_members).reshape(size, n_members).astype(np.float64)
+        scores = evaluate(multiplicity)
+        # Competition rank: 1 + the number of terms scoring strictly higher, read off each
+        # row sorted once (one vectorised sort for the batch, then a binary search per row).
+        ordered = np.sort(scores, axis=-1)
+        for g, chosen in enumerate(picks):
+            if len(chosen):
+                target = scores[:, g, chosen]
+                for r in range(size):
+                    ranks[g][first + r] = n_terms - np.searchsorted(ordered[r, g], target[r], side="right") + 1
     frames = []
     for g, chosen in enumerate(picks):
         if len(chosen) == 0:
