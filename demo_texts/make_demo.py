@@ -485,6 +485,45 @@ def plant_copies(rng: random.Random, people: list[Respondent], bank: ModuleType)
         dst.truth["q_improve"]["detail"] = "iban"
 
 
+def order_copies(people: list[Respondent]) -> None:
+    """Call the later of two equal answers, in file order, the copy.
+
+    Which one was pasted from which is arbitrary in the data; a reader going
+    through the file (and termloom's clean stage) meets the first occurrence
+    first, so the key names that one the source.
+    """
+    position = {(r.rid, column): (i, j) for i, r in enumerate(people) for j, column in enumerate(QUESTIONS)}
+    groups: dict[str, list[tuple[tuple[int, int], Respondent, str]]] = {}
+    for r in people:
+        for column in QUESTIONS:
+            t = r.truth.get(column)
+            if t and {"duplicate", "duplicate_source"} & set(t["tags"]):
+                groups.setdefault(r.answers[column], []).append((position[(r.rid, column)], r, column))
+    for members in groups.values():
+        members.sort(key=lambda m: m[0])
+        (_, first, first_column), *copies = members
+        _retag(first.truth[first_column], ("duplicate", "duplicate_source"), "duplicate_source", "")
+        for _, r, column in copies:
+            how = "same_as" if r is first else "copy_of"
+            _retag(r.truth[column], ("duplicate", "duplicate_source"), "duplicate", f"{how}:{first.rid}|{first_column}")
+    by_id = {f"{r.rid}|{column}": (r, column) for r in people for column in QUESTIONS}
+    for r in people:
+        for column in QUESTIONS:
+            t = r.truth.get(column)
+            if not t or "near_duplicate" not in t["tags"]:
+                continue
+            source, source_column = by_id[t["detail"].removeprefix("near:")]
+            if position[(source.rid, source_column)] > position[(r.rid, column)]:
+                pair = ("near_duplicate", "near_duplicate_source")
+                _retag(t, pair, "near_duplicate_source", "")
+                _retag(source.truth[source_column], pair, "near_duplicate", f"near:{r.rid}|{column}")
+
+
+def _retag(truth: dict, old: tuple[str, ...], tag: str, detail: str) -> None:
+    truth["tags"] = [tag] + [t for t in truth["tags"] if t not in old]
+    truth["detail"] = detail
+
+
 def generate(seed: int = SEED) -> list[Respondent]:
     rng = random.Random(seed)
     bank = load_bank()
@@ -493,6 +532,7 @@ def generate(seed: int = SEED) -> list[Respondent]:
     fill_answers(rng, people, composer)
     surface_mess(rng, people, composer)
     plant_copies(rng, people, bank)
+    order_copies(people)
     return people
 
 

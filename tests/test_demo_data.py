@@ -156,9 +156,15 @@ def test_duplicates_are_the_planted_ones(answers: pd.DataFrame) -> None:
     import numpy as np
     from rapidfuzz import fuzz, process
 
-    by_id = dict(zip(answers["respondent_id"] + "|" + answers["question"], answers["text"]))
+    ids = answers["respondent_id"] + "|" + answers["question"]
+    by_id = dict(zip(ids, answers["text"]))
+    # Input order of answers: row by row, q_liked before q_improve (workbench.core.corpus).
+    order = {answer: (respondent, question == "q_improve") for answer, respondent, question
+             in zip(ids, answers["respondent_id"], answers["question"])}
     for row in answers[answers["planted"].map(lambda p: bool({"duplicate", "near_duplicate"} & _tags(p)))].itertuples():
-        source = by_id[row.detail.split(":", 1)[1]]
+        source_id = row.detail.split(":", 1)[1]
+        source = by_id[source_id]
+        assert order[source_id] < order[f"{row.respondent_id}|{row.question}"]  # the copy comes later
         if "near_duplicate" in _tags(row.planted):
             assert row.text != source and fuzz.ratio(row.text, source) >= 92
         else:
