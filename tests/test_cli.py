@@ -56,3 +56,9 @@ def test_languages_lists_profiles() -> None:
     result = run_cli("languages")
     assert result.returncode == 0
     assert any(line.startswith("de ") for line in result.stdout.splitlines())
+
+
+def test_quiet_is_accepted_after_the_command(tmp_path: Path) -> None:
+    result = run_cli("check", str(tmp_path / "absent.study.toml"), "-q")
+    assert result.returncode == 2
+    assert "unrecognized arguments" not in result.stderr

@@ -183,9 +183,12 @@ def build_parser() -> argparse.ArgumentParser:
     )
     parser.add_argument("--version", action="version", version=f"termloom {__version__}")
     parser.add_argument("-q", "--quiet", action="store_true", help="print only errors")
+    # --quiet is accepted before or after the command name.
+    common = argparse.ArgumentParser(add_help=False)
+    common.add_argument("-q", "--quiet", action="store_true", default=argparse.SUPPRESS, help="print only errors")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
 
-    run = sub.add_parser("run", help="run a study headless and write its output folder")
+    run = sub.add_parser("run", parents=[common], help="run a study headless and write its output folder")
     run.add_argument("study", help="the *.study.toml file")
     run.add_argument("--out", help="output folder (default: ./termloom-out/<study name>)")
     run.add_argument("--set", action="append", metavar="KEY=VALUE", help="override a setting, e.g. weigh.tf=log (repeatable)")
@@ -193,25 +196,25 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("--scheduler", metavar="ADDRESS", help="Dask scheduler to connect to (default: start a local cluster)")
     run.set_defaults(handler=_cmd_run)
 
-    check = sub.add_parser("check", help="report every problem in a study file at once")
+    check = sub.add_parser("check", parents=[common], help="report every problem in a study file at once")
     check.add_argument("study")
     check.add_argument("--set", action="append", metavar="KEY=VALUE", help="override a setting (repeatable)")
     check.set_defaults(handler=_cmd_check)
 
-    init = sub.add_parser("init", help="write a starter study by inspecting a data file")
+    init = sub.add_parser("init", parents=[common], help="write a starter study by inspecting a data file")
     init.add_argument("data", help="CSV, TSV, XLSX, JSON Lines, Parquet file or a folder of .txt files")
     init.add_argument("--out", help="study file to write (default: <data name>.study.toml beside the data)")
     init.set_defaults(handler=_cmd_init)
 
-    open_ = sub.add_parser("open", help="open the terminal workbench on a study (or a data file, to start one)")
+    open_ = sub.add_parser("open", parents=[common], help="open the terminal workbench on a study (or a data file, to start one)")
     open_.add_argument("target", help="a *.study.toml file or a data file")
     open_.set_defaults(handler=_cmd_open)
 
-    verify = sub.add_parser("verify", help="recheck every file of an output folder against its manifest")
+    verify = sub.add_parser("verify", parents=[common], help="recheck every file of an output folder against its manifest")
     verify.add_argument("outdir")
     verify.set_defaults(handler=_cmd_verify)
 
-    languages = sub.add_parser("languages", help="list the languages termloom has profiles for")
+    languages = sub.add_parser("languages", parents=[common], help="list the languages termloom has profiles for")
     languages.set_defaults(handler=_cmd_languages)
     return parser
 
