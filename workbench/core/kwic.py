@@ -157,19 +157,26 @@ def kwic_lines(
         for language, rows in rows_of.items():
             for i, found in zip(rows, spans(language, [texts[r] for r in rows]), strict=True):
                 token_spans[i] = found
+    # Plain arrays: reading cells through pandas once per line would dominate the cost.
+    column = {
+        "answer_id": answers[ANSWER_ID].to_numpy(dtype=object),
+        "respondent_id": answers[RESPONDENT_ID].to_numpy(dtype=object) if RESPONDENT_ID in answers.columns else None,
+        "question": answers[QUESTION].to_numpy(dtype=object) if QUESTION in answers.columns else None,
+        **{c: answers[c].to_numpy(dtype=object) for c in extra},
+    }
     out = []
     for i, present in holding:
         text = texts[i]
         for term in present:
             places = _token_matches(token_spans.get(i, []), term) or _word_search(text, term)
             base = {
-                "answer_id": answers[ANSWER_ID].iat[i],
-                "respondent_id": answers[RESPONDENT_ID].iat[i] if RESPONDENT_ID in answers.columns else "",
+                "answer_id": column["answer_id"][i],
+                "respondent_id": column["respondent_id"][i] if column["respondent_id"] is not None else "",
                 "language": languages[i],
-                "question": answers[QUESTION].iat[i] if QUESTION in answers.columns else "",
+                "question": column["question"][i] if column["question"] is not None else "",
                 "term": term,
             }
-            base.update({c: answers[c].iat[i] for c in extra})
+            base.update({c: column[c][i] for c in extra})
             if not places:
                 right = " ".join(text[: 2 * width].split())
                 out.append({**base, "left": "", "match": "", "right": right, "line": f"[] {right}",
