@@ -318,7 +318,7 @@ DE = {
             "liked": ["Der Preis war fair für eine Nacht im Liegewagen.",
                       "Günstige Tickets, wenn man früh bucht.",
                       "Gutes Preis-Leistungs-Verhältnis im Vergleich zum Fliegen.",
-                      "Der Sparpreis war {very} günstig."],
+                      "Der Spartarif war {very} günstig."],
             "liked_short": ["Der Preis", "Günstig", "Günstige Tickets"],
             "improve": ["Die Tickets sind viel zu teuer.",
                         "Die Preise sind stark gestiegen, Fliegen ist billiger.",
