@@ -152,7 +152,7 @@ def bootstrap_top_k(
     ranks = [np.empty((resamples, len(p)), dtype=np.int64) for p in picks]
     rng = np.random.default_rng(seed)
     # Resamples per batch: bounded so the score array and the rank comparisons stay small.
-    batch = int(max(1, min(resamples, 4_000_000 // max(1, n_groups * n_terms))))
+    batch = int(max(1, min(resamples, 250_000 // max(1, n_groups * n_terms))))
     for first in range(0, resamples, batch):
         if reporter is not None:
             reporter.update("compare", first, resamples, "bootstrap stability")
