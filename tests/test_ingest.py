@@ -72,6 +72,24 @@ def test_rfc4180_quoting_examples(tmp_path):
     assert_accounted(corpus, ledger)
 
 
+@pytest.mark.parametrize(
+    ("data", "question"),
+    [
+        (b'id,"open\nanswer",g\n1,"first\nline",a\n2,second,b\n', "open\nanswer"),  # line break in a quoted header
+        (b"id,open answer,g\r1,first,a\r2,second,b\r", "open answer"),  # CR-only line ends (classic Mac OS)
+        (b"\n\nid,open answer,g\n\n1,first,a\n2,second,b", "open answer"),  # blank lines first, no final break
+    ],
+)
+def test_header_and_line_end_variants(tmp_path, data, question):
+    (tmp_path / "v.csv").write_bytes(data)
+    corpus, ledger = run(make_study(tmp_path, "v.csv", id="id", groups=["g"], text=[question]))
+    assert corpus.reports[0].columns == ["id", question, "g"]
+    assert corpus.respondents[RESPONDENT_ID].tolist() == ["1", "2"]
+    assert corpus.respondents["g"].tolist() == ["a", "b"]
+    assert corpus.answers[RAW_TEXT].tolist()[1] == "second"
+    assert_accounted(corpus, ledger)
+
+
 def test_answers_are_in_input_order_record_then_question(tmp_path):
     (tmp_path / "a.csv").write_text("id,q1,q2\n1,a,b\n2,,c\n3,d,\n", encoding="utf-8")
     corpus, _ = run(make_study(tmp_path, "a.csv", id="id", text=["q1", "q2"]), chunk_rows=2)

@@ -2,7 +2,7 @@
 
 Run on demand (not part of the test suite)::
 
-    python tests/bench/bench_ingest.py [--sizes 100000,1000000] [--repeats 3] [--ragged]
+    python tests/bench/bench_ingest.py [--sizes 100000,1000000] [--repeats 3] [--ragged] [--formats 20000]
 
 A seeded synthetic survey export is written to a temporary folder: an id,
 two open-ended questions (0-13 words each, so some cells are empty), two
@@ -16,7 +16,10 @@ keep_default_na=False)`` (which only parses: no ledger, no answers table).
 parsing, one answer per non-empty cell, ids, weights, hints, groups and one
 ledger event per row and per answer. ``--ragged`` adds one record with an extra
 field a tenth of the way in, which moves the rest of the file to the
-standard-library csv reader.
+standard-library csv reader. ``--formats N`` also writes the first N rows as
+JSON Lines, Parquet and XLSX and compares ingest of each with
+``pandas.read_json(lines=True)``, ``pandas.read_parquet`` and
+``pandas.read_excel`` (openpyxl).
 """
 
 from __future__ import annotations
@@ -41,7 +44,7 @@ CHILD = r"""
 import json, resource, sys, time
 kind, path = sys.argv[1], sys.argv[2]
 start = time.perf_counter()
-if kind == "termloom ingest":
+if kind.startswith("termloom"):
     from workbench.core.ingest import read_corpus
     from workbench.core.ledger import Ledger
     from workbench.core.progress import Reporter
@@ -52,6 +55,13 @@ if kind == "termloom ingest":
     start = time.perf_counter()
     corpus = read_corpus(study, ledger, Reporter())
     rows, extra = len(corpus.respondents), f"{len(corpus.answers):,} answers, {len(ledger.events):,} ledger events"
+elif kind in ("pandas.read_json", "pandas.read_parquet", "pandas.read_excel"):
+    import pandas as pd
+    start = time.perf_counter()
+    frame = {"pandas.read_json": lambda p: pd.read_json(p, lines=True, dtype=False),
+             "pandas.read_parquet": pd.read_parquet,
+             "pandas.read_excel": lambda p: pd.read_excel(p, engine="openpyxl")}[kind](path)
+    rows, extra = len(frame), ""
 elif kind == "pandas.read_csv":
     import pandas as pd
     start = time.perf_counter()
@@ -101,11 +111,42 @@ def measure(kind: str, path: Path) -> dict:
     return json.loads(out.stdout.strip().splitlines()[-1])
 
 
+def write_formats(csv_path: Path, n: int) -> dict[str, Path]:
+    from openpyxl import Workbook
+
+    frame = pd.read_csv(csv_path, dtype=str, keep_default_na=False, nrows=n)
+    paths = {fmt: csv_path.with_name(f"survey_{n}.{fmt}") for fmt in ("jsonl", "parquet", "xlsx")}
+    frame.to_json(paths["jsonl"], orient="records", lines=True, force_ascii=False)
+    frame.to_parquet(paths["parquet"])
+    book = Workbook(write_only=True)
+    sheet = book.create_sheet("answers")
+    sheet.append(list(frame.columns))
+    for row in frame.itertuples(index=False):
+        sheet.append(list(row))
+    book.save(paths["xlsx"])
+    return paths
+
+
+def report_formats(csv_path: Path, n: int, repeats: int) -> None:
+    pairs = {"jsonl": "pandas.read_json", "parquet": "pandas.read_parquet", "xlsx": "pandas.read_excel"}
+    print(f"\n{n:,} rows in other formats")
+    print(f"{'reader':26} {'median s':>9} {'rows/s':>11} {'peak MB':>8} {'ratio':>6}")
+    for fmt, path in write_formats(csv_path, n).items():
+        ours = [measure("termloom ingest", path) for _ in range(repeats)]
+        theirs = [measure(pairs[fmt], path) for _ in range(repeats)]
+        base = statistics.median(r["seconds"] for r in theirs)
+        for kind, runs in ((f"termloom ingest ({fmt})", ours), (pairs[fmt], theirs)):
+            seconds = statistics.median(r["seconds"] for r in runs)
+            peak = max(r["peak"] for r in runs) / 1e6
+            print(f"{kind:26} {seconds:9.2f} {runs[0]['rows'] / seconds:11,.0f} {peak:8.0f} {seconds / base:6.2f}")
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--sizes", default="100000,1000000")
     parser.add_argument("--repeats", type=int, default=3)
     parser.add_argument("--ragged", action="store_true")
+    parser.add_argument("--formats", type=int, default=0, help="rows for the JSON Lines / Parquet / XLSX comparison")
     args = parser.parse_args()
     with tempfile.TemporaryDirectory() as folder:
         for n in [int(s) for s in args.sizes.split(",")]:
@@ -117,12 +158,14 @@ def main() -> None:
                     runs[kind].append(measure(kind, path))
             base = statistics.median(r["seconds"] for r in runs["pandas.read_csv"])
             print(f"\n{n:,} rows, {path.stat().st_size / 1e6:.0f} MB{' (one ragged record)' if args.ragged else ''}")
-            print(f"{'reader':24} {'median s':>9} {'rows/s':>11} {'peak MB':>8} {'ratio':>6}  notes")
+            print(f"{'reader':26} {'median s':>9} {'rows/s':>11} {'peak MB':>8} {'ratio':>6}  notes")
             for kind in READERS:
                 seconds = statistics.median(r["seconds"] for r in runs[kind])
                 peak = max(r["peak"] for r in runs[kind]) / 1e6
                 rows = runs[kind][0]["rows"]
-                print(f"{kind:24} {seconds:9.2f} {rows / seconds:11,.0f} {peak:8.0f} {seconds / base:6.2f}  {runs[kind][0]['extra']}")
+                print(f"{kind:26} {seconds:9.2f} {rows / seconds:11,.0f} {peak:8.0f} {seconds / base:6.2f}  {runs[kind][0]['extra']}")
+        if args.formats:
+            report_formats(path, args.formats, args.repeats)
 
 
 if __name__ == "__main__":

@@ -99,12 +99,16 @@ def repair_header(raw: list[object]) -> tuple[list[str], dict[str, list[int]], l
     return names, duplicated, notes
 
 
+def columns_frame(columns: dict[str, list[str]]) -> pd.DataFrame:
+    """Equal-length lists of strings as a table of Arrow-backed strings."""
+    return pd.DataFrame({name: pa.array(values, type=pa.large_string()).to_pandas() for name, values in columns.items()})
+
+
 def string_frame(records: list[list[str]], names: list[str]) -> pd.DataFrame:
-    """Records of equal width as a table of Arrow-backed strings (columnwise: far cheaper than row-wise)."""
+    """Records of equal width as a table of Arrow-backed strings (built columnwise)."""
     if not records:
-        return pd.DataFrame({name: pd.Series([], dtype=str) for name in names})
-    columns = list(zip(*records))
-    return pd.DataFrame({name: pa.array(col, type=pa.large_string()).to_pandas() for name, col in zip(names, columns)})
+        return columns_frame({name: [] for name in names})
+    return columns_frame(dict(zip(names, map(list, zip(*records)))))
 
 
 def preview(values: list[str], separator: str, limit: int = 80) -> str:

@@ -17,7 +17,7 @@ from typing import Any
 import numpy as np
 
 from workbench.core.corpus import ImportReport
-from workbench.core.readers.base import Chunk, Opened, RowProblem, string_frame
+from workbench.core.readers.base import Chunk, Opened, RowProblem, columns_frame
 from workbench.core.readers.encoding import scan_file
 from workbench.core.readers.files import check_readable_file
 from workbench.core.settings import Source
@@ -48,10 +48,11 @@ def open_jsonl(source: Source, report: ImportReport, *, chunk_rows: int, full: b
 
 
 def _chunks(path: Path, codec: str, chunk_rows: int) -> Iterator[Chunk]:
-    records: list[dict[str, str]] = []
+    # Values go straight into per-column lists (one pass, no per-record dicts kept);
+    # a column first met late is padded with "" for the records before it.
+    columns: dict[str, list[str]] = {}
     rows: list[int] = []
     problems: list[RowProblem] = []
-    seen: dict[str, None] = {}
     with path.open(encoding=codec, newline="") as handle:
         for number, line in enumerate(handle, start=1):
             if not line.strip():
@@ -70,19 +71,24 @@ def _chunks(path: Path, codec: str, chunk_rows: int) -> Iterator[Chunk]:
                     f"line {number} holds a JSON {type(value).__name__}, not an object; the line was skipped, the rest read",
                 ))
                 continue
-            record = {str(key): _text(item) for key, item in value.items()}
-            for key in record:
-                if key not in seen:
-                    seen[key] = None
-            records.append(record)
+            count = len(rows)
+            for key, item in value.items():
+                column = columns.get(key)
+                if column is None:
+                    column = columns[key] = [""] * count
+                column.append(item if isinstance(item, str) else _text(item))
             rows.append(number)
-            if len(records) >= chunk_rows:
-                yield _chunk(records, rows, problems, list(seen))
-                records, rows, problems = [], [], []
-    if records or problems:
-        yield _chunk(records, rows, problems, list(seen))
+            if len(value) != len(columns):
+                for column in columns.values():
+                    if len(column) == count:
+                        column.append("")
+            if len(rows) >= chunk_rows:
+                yield _chunk(columns, rows, problems)
+                columns = {name: [] for name in columns}
+                rows, problems = [], []
+    if rows or problems:
+        yield _chunk(columns, rows, problems)
 
 
-def _chunk(records: list[dict[str, str]], rows: list[int], problems: list[RowProblem], columns: list[str]) -> Chunk:
-    table = [[record.get(name, "") for name in columns] for record in records]
-    return Chunk(string_frame(table, columns), np.asarray(rows, dtype=np.int64), problems)
+def _chunk(columns: dict[str, list[str]], rows: list[int], problems: list[RowProblem]) -> Chunk:
+    return Chunk(columns_frame(columns), np.asarray(rows, dtype=np.int64), problems)

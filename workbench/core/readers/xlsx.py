@@ -14,6 +14,7 @@ with no value at all are not records (spreadsheets keep formatted empty rows).
 from __future__ import annotations
 
 import datetime as dt
+import itertools
 import warnings
 import zipfile
 from collections.abc import Iterator
@@ -115,16 +116,20 @@ def open_xlsx(source: Source, report: ImportReport, *, chunk_rows: int, full: bo
     report.sheet = title
     rows = book[title].iter_rows(values_only=True)
 
+    block: list[tuple[Any, ...]] = []
+
     def next_values() -> tuple[Any, ...] | None:
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            try:
-                return next(rows)
-            except StopIteration:
-                return None
-            except Exception as exc:  # damaged sheet XML surfaces mid-read
-                book.close()
-                raise InputError(f"{path}: sheet '{title}' cannot be read ({type(exc).__name__}: {exc}); save it again") from None
+        # rows are pulled a block at a time: entering catch_warnings per row would cost more than the parsing
+        if not block:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                try:
+                    block.extend(itertools.islice(rows, 2000))
+                except Exception as exc:  # damaged sheet XML surfaces mid-read
+                    book.close()
+                    raise InputError(f"{path}: sheet '{title}' cannot be read ({type(exc).__name__}: {exc}); save it again") from None
+            block.reverse()
+        return block.pop() if block else None
 
     header: tuple[Any, ...] | None = None
     while (values := next_values()) is not None:
