@@ -77,7 +77,7 @@ def test_rfc4180_quoting_examples(tmp_path):
     [
         (b'id,"open\nanswer",g\n1,"first\nline",a\n2,second,b\n', "open\nanswer"),  # line break in a quoted header
         (b"id,open answer,g\r1,first,a\r2,second,b\r", "open answer"),  # CR-only line ends (classic Mac OS)
-        (b"\n\nid,open answer,g\n\n1,first,a\n2,second,b", "open answer"),  # blank lines first, no final break
+        (b"\n  \nid,open answer,g\n\n1,first,a\n2,second,b", "open answer"),  # blank lines first, no final break
     ],
 )
 def test_header_and_line_end_variants(tmp_path, data, question):

@@ -23,7 +23,7 @@ Each source is read in chunks by the reader its format needs
   blank = missing), the weight column ``weight`` (float; a decimal comma as in
   ``1,25`` is read as a decimal; anything else that is not a number becomes NaN
   and is flagged ``bad_weight`` — validating weights is the weigh stage's job),
-  the language-hint column ``hint`` (trimmed, lower case, blank = ``None``).
+  the language-hint column ``hint`` (trimmed, lower case, blank = missing).
   Without a weight column every weight is 1.0.
 * **Ledger.** Every record gets a row event (``kept``/``read``, or
   ``kept``/``no_text`` when all its text cells are empty) plus a ``flagged``

@@ -134,8 +134,9 @@ def open_delimited(
         report.notes.append(f"delimiter: {_shown(delimiter)} ({how})")
 
     reader = csv.reader(io.StringIO(sample, newline=""), delimiter=delimiter)
-    header = next((r for r in reader if r), None)
-    if header is None or (len(header) == 1 and not header[0].strip()):
+    # like the parsers, skip blank and whitespace-only lines before the header
+    header = next((r for r in reader if r and not (len(r) == 1 and not r[0].strip())), None)
+    if header is None:
         raise InputError(f"{path} holds only blank lines; export the data again with a header row and answers")
     # physical lines up to the end of the header; pyarrow skips lines, not records
     header_lines = skip + reader.line_num
