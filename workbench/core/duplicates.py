@@ -204,7 +204,16 @@ def find_duplicates(
     """
     n = len(texts)
     result: list[tuple[str, int, float] | None] = [None] * n
-    keys = [duplicate_key(t) if ok else "" for t, ok in zip(texts, eligible, strict=True)]
+    cache: dict[str, str] = {}
+    keys = []
+    for text, ok in zip(texts, eligible, strict=True):
+        if not ok:
+            keys.append("")
+            continue
+        key = cache.get(text)
+        if key is None:
+            key = cache[text] = duplicate_key(text)
+        keys.append(key)
     first_by_respondent: dict[tuple[str, str], int] = {}
     first_by_question: dict[tuple[str, str], int] = {}
     for i in range(n):

@@ -28,7 +28,7 @@ German in the English questionnaire is labelled German.
 
 What the detector sees
 ----------------------
-The cleaned text without placeholders, emoji, URLs (already placeholders),
+The cleaned text without placeholders, emoji and other symbols, URLs (already placeholders),
 digits and letters of scripts no expected language uses (Arabic or Hebrew
 in a study of Latin-script languages), lower-cased when written all in
 capitals. Letters are counted on
@@ -78,7 +78,6 @@ import re
 import unicodedata
 from collections import defaultdict
 
-import emoji
 import pandas as pd
 
 from workbench.core import corpus as C
@@ -95,7 +94,9 @@ from workbench.core.settings import Study
 STAGE = "identify"
 _BATCH = 5000
 _SEGMENT_RE = re.compile(r"[.!?;:…,\n]+")
-_NOT_TEXT_RE = re.compile(r"\d+")
+#: Anything but letters, white space and sentence punctuation: emoji, symbols,
+#: digits, underscores. One C-level pass instead of an emoji tokenizer.
+_NOT_TEXT_RE = re.compile(r"[^\w\s.,;:!?¡¿'’\"()\-]+|[\d_]+")
 MIN_SEGMENT_LETTERS = 12
 
 
@@ -104,6 +105,8 @@ MIN_SEGMENT_LETTERS = 12
 #: call Arabic text English, having nothing better to offer).
 LANGUAGE_SCRIPTS: dict[str, str] = {"el": "GREEK", "ru": "CYRILLIC"}
 _DEFAULT_SCRIPT = "LATIN"
+#: A letter outside the Latin blocks (Basic to Extended-B, Extended Additional).
+_NON_LATIN_LETTER_RE = re.compile(r"[^\W\d_\u0000-\u024f\u1e00-\u1eff]")
 
 
 @functools.lru_cache(maxsize=65536)
@@ -116,21 +119,20 @@ def scripts_of(languages: list[str]) -> frozenset[str]:
 
 
 def detection_text(clean_text: str, scripts: frozenset[str] = frozenset({_DEFAULT_SCRIPT})) -> str:
-    """What the detector sees: no placeholders, emoji, digits or letters of
-    scripts the expected languages do not use; all-caps text lowered."""
+    """What the detector sees: no placeholders, emoji, symbols, digits or letters
+    of scripts the expected languages do not use; all-caps text lowered."""
     text = PLACEHOLDER_RE.sub(" ", clean_text) if "⟨" in clean_text else clean_text
-    if not text.isascii():
-        text = emoji.replace_emoji(text, " ")
+    text = _NOT_TEXT_RE.sub(" ", text)
+    if not text.isascii() and (_DEFAULT_SCRIPT not in scripts or _NON_LATIN_LETTER_RE.search(text)):
         text = "".join(" " if ch.isalpha() and _script(ch) not in scripts else ch for ch in text)
     elif _DEFAULT_SCRIPT not in scripts:
         text = "".join(" " if ch.isalpha() else ch for ch in text)
-    text = _NOT_TEXT_RE.sub(" ", text)
     text = " ".join(text.split())
     return text.lower() if text.isupper() else text
 
 
 def count_letters(text: str) -> int:
-    return sum(ch.isalpha() for ch in text)
+    return sum(map(str.isalpha, text))
 
 
 def check_languages(study: Study, detector: Detector) -> None:
@@ -234,14 +236,19 @@ def identify_answers(
     texts: list[str | None] = []
     letters: list[int] = []
     distinct: dict[str, int] = {}
+    # Survey answers repeat: prepare each distinct cleaned text once.
+    seen: dict[str, tuple[str, int]] = {}
     for i in range(n):
         junk = any(f in JUNK_CODES for f in (flags_in[i] or ()))
         if ids[i] in valid_decisions or junk:
             texts.append(None)
             letters.append(0)
             continue
-        text = detection_text(str(cleaned[i]) if isinstance(cleaned[i], str) else "", scripts)
-        count = count_letters(text)
+        source_text = cleaned[i] if isinstance(cleaned[i], str) else ""
+        if source_text not in seen:
+            prepared = detection_text(source_text, scripts)
+            seen[source_text] = (prepared, count_letters(prepared))
+        text, count = seen[source_text]
         texts.append(text)
         letters.append(count)
         if count >= settings.min_letters and text not in distinct:
@@ -257,7 +264,10 @@ def identify_answers(
     for index, text in enumerate(unique):
         if count_letters(text) >= 2 * settings.mixed_min_letters:
             parts = _segments(text, min_segment)
-            if len(parts) >= 2:
+            counts = [count for _, count in parts]
+            # A second language needs mixed_min_letters letters outside the
+            # largest segment; when the rest is shorter, no need to look.
+            if len(parts) >= 2 and sum(counts) - max(counts) >= settings.mixed_min_letters:
                 for piece, count in parts:
                     seg_texts.append(piece)
                     seg_owner.append((index, count))
@@ -300,11 +310,7 @@ def identify_answers(
         else:
             text = texts[i]
             guess, prob = UND, 0.0
-            if text is None:
-                reason = "not a real answer (see clean flags); not detected"
-            elif letters[i] < settings.min_letters:
-                reason = f"too few letters to detect ({letters[i]} < identify.min_letters {settings.min_letters})"
-            else:
+            if text is not None and letters[i] >= settings.min_letters:
                 index = distinct[text]
                 guess, prob = detected[index]
                 if index in mixed_info:
@@ -313,11 +319,6 @@ def identify_answers(
                     flags.append("mixed_language")
                     spread = ", ".join(f"{k} {v} letters" for k, v in tally.items())
                     events.append(("answer", aid, src, row, STAGE, "flagged", "mixed_language", f"mixed languages: {spread}"))
-                reason = (
-                    f"detector unsure ({guess} {prob:.2f} < identify.min_confidence {settings.min_confidence})"
-                    if guess != UND
-                    else "detector found no usable features"
-                )
             if guess != UND and (prob >= settings.min_confidence or mixed):
                 label, confidence, source = guess, prob, "detector"
             else:
@@ -328,13 +329,23 @@ def identify_answers(
                 elif fallback == "default" and study.languages.default:
                     label, source = study.languages.default, "default"
                 confidence = prob if guess == label else 0.0
+                # The reason is spelled out only for the answers that need it.
+                if text is None:
+                    reason = "not a real answer (see clean flags); not detected"
+                elif letters[i] < settings.min_letters:
+                    reason = f"too few letters to detect ({letters[i]} < identify.min_letters {settings.min_letters})"
+                elif guess != UND:
+                    reason = f"detector unsure ({guess} {prob:.2f} < identify.min_confidence {settings.min_confidence})"
+                else:
+                    reason = "detector found no usable features"
                 if label == UND:
                     message = f"language undetermined: {reason}"
                     if fallback == "hint":
                         message += "; no usable hint"
                     events.append(("answer", aid, src, row, STAGE, "kept", "language_und", message))
                 else:
-                    events.append(("answer", aid, src, row, STAGE, "kept", f"language_from_{source}", f"language '{label}' from the {source}: {reason}"))
+                    message = f"language '{label}' from the {source}: {reason}"
+                    events.append(("answer", aid, src, row, STAGE, "kept", f"language_from_{source}", message))
         languages.append(label)
         confidences.append(float(confidence))
         sources_col.append(source)

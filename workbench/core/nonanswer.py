@@ -29,6 +29,7 @@ Reason codes, checked in this order
 
 from __future__ import annotations
 
+import functools
 import re
 import unicodedata
 from collections.abc import Iterable
@@ -52,6 +53,10 @@ MESSAGES = {
 }
 
 _APOSTROPHES = str.maketrans("", "", "'’‘`´ʼ")
+#: Combining marks (category Mn), removed after NFD; they live in planes 0, 1
+#: and 14 (variation selectors).
+_MARKS = {cp: None for cp in (*range(0x20000), *range(0xE0100, 0xE01F0)) if unicodedata.category(chr(cp)) == "Mn"}
+_NON_WORD = re.compile(r"[\W_]+")
 
 
 def phrase_key(text: str) -> str:
@@ -62,14 +67,9 @@ def phrase_key(text: str) -> str:
     ``"Weiß nicht"`` → ``"weiss nicht"``, ``"No sé"`` → ``"no se"``.
     """
     text = text.casefold().translate(_APOSTROPHES)
-    decomposed = unicodedata.normalize("NFD", text)
-    out = []
-    for ch in decomposed:
-        if ch.isalnum():
-            out.append(ch)
-        elif unicodedata.category(ch) != "Mn":
-            out.append(" ")
-    return " ".join("".join(out).split())
+    if not text.isascii():
+        text = unicodedata.normalize("NFD", text).translate(_MARKS)
+    return _NON_WORD.sub(" ", text).strip()
 
 
 # ----------------------------------------------------------------- keyboard mash
@@ -115,6 +115,7 @@ def _base(ch: str) -> str:
     return unicodedata.normalize("NFD", ch)[0]
 
 
+@functools.lru_cache(maxsize=200_000)
 def _token_is_mash(token: str) -> bool:
     """Whether one lowercase letter token looks like keyboard mash (rules in :func:`is_keyboard_mash`)."""
     n = len(token)
@@ -183,7 +184,7 @@ def is_keyboard_mash(text: str) -> bool:
     statistics we do not ship; the rules above need none and cost one pass.
     """
     tokens = _WORD_RE.findall(text.lower())
-    total = sum(len(t) for t in tokens)
+    total = sum(map(len, tokens))
     if total < MASH_WHOLE_WALK:
         return False
     mashed = sum(len(t) for t in tokens if _token_is_mash(t))
@@ -220,6 +221,6 @@ class NonAnswerRules:
             return "non_answer"
         if is_keyboard_mash(content):
             return "keyboard_mash"
-        if sum(not ch.isspace() for ch in content) < self.min_chars:
+        if len(content) - content.count(" ") < self.min_chars:  # clean text has single spaces only
             return "too_short"
         return None
