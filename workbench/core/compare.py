@@ -470,7 +470,9 @@ def _findings(all_tables: list[tuple[str, str, str, KeynessTable]], languages: l
     for entry in rows:
         first_per_group.setdefault((entry[2], str(entry[4].target)), entry)
     ordered = sorted(first_per_group.values(), key=lambda r: -r[0])
-    ordered += [r for r in rows if r not in ordered]
+    # By identity: two entries can tie on every field but the row (a Series), which has no truth value.
+    chosen = {id(r) for r in ordered}
+    ordered += [r for r in rows if id(r) not in chosen]
     out: list[str] = []
     seen: set[tuple[str, str, float]] = set()
     for g2, name, grouping, unit, kt, row in ordered:
