@@ -209,3 +209,18 @@ def test_stability_lists_are_the_keyword_tables(tmp_path: Path) -> None:
             np.testing.assert_allclose(ours["score"], theirs[ranking])
             assert ours["stay_share"].between(0, 1).all()
             assert (ours["resamples"] == 20).all()
+
+
+def test_findings_with_tied_terms() -> None:
+    """Two terms with identical counts in one table tie on G²: the findings list both, once each."""
+    from workbench.core.compare import _findings
+    from workbench.core.keyness import KeynessTable
+
+    row = {"freq_group": 30.0, "freq_ref": 5.0, "rel_group": 0.3, "rel_ref": 0.05, "share_group": 0.3,
+           "share_ref": 0.05, "log_ratio": 2.58, "g2": 25.0, "p": 1e-6, "p_adj": 1e-5, "significant": True,
+           "direction": "over", "counting": "respondents", "weighted": False}  # fmt: skip
+    table = pd.DataFrame([{"term": "alpha", **row}, {"term": "beta", **row}])
+    kt = KeynessTable("A", None, table, tested=2, significant=2, n_target=100, n_reference=100)
+    found = _findings([("keyness__g__A__vs_rest__de", "g", "de", kt)], ["de"])
+    assert len(found) == 2
+    assert "'alpha'" in found[0] and "'beta'" in found[1]
