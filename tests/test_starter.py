@@ -154,7 +154,7 @@ def test_default_path_is_beside_the_data_and_never_overwritten(tmp_path):
 def test_missing_data_file(tmp_path):
     with pytest.raises(InputError) as info:
         guess_study(tmp_path / "absent.csv")
-    assert "absent.csv does not exist" in str(info.value)
+    assert "absent.csv does not exist; give init the exported answers" in str(info.value)
     assert not (tmp_path / "absent.study.toml").exists()
 
 

@@ -172,6 +172,8 @@ def guess_study(data_path: Path) -> tuple[dict[str, Any], list[str]]:
         file) and one human-readable line per guess.
     """
     data_path = Path(data_path)
+    if not data_path.exists():
+        raise InputError(f"{data_path} does not exist; give init the exported answers (a data file or a folder of .txt files)")
     frame, report = peek_source(data_path, PEEK_ROWS)
     if frame.empty:
         raise InputError(f"{data_path} has a header row but no data rows; init guesses column roles from the answers")
