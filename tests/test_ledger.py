@@ -16,3 +16,17 @@ def test_final_status_is_the_most_severe() -> None:
     frame = ledger.frame()
     assert list(frame.columns) == ["level", "key", "source", "row", "stage", "status", "code", "message"]
     assert len(frame) == 5
+
+
+def test_bulk_blocks_keep_order_and_truncate_by_event_count() -> None:
+    ledger = Ledger()
+    ledger.row("r1", "s", 1, "ingest", "kept", "read", "read")
+    ledger.bulk("answer", ["a", "b", "c"], "s", [1, 1, 2], "ingest", "kept", "read", ["m1", "m2", "m3"])
+    mark = ledger.mark()
+    ledger.answer("b", "s", 1, "clean", "flagged", "non_answer", "non-answer")
+    assert [e[1] for e in ledger.events] == ["r1", "a", "b", "c", "b"]
+    assert ledger.final_status("answer") == {"a": "kept", "b": "flagged", "c": "kept"}
+    earlier = ledger.truncated(mark)
+    assert len(earlier) == 4 and earlier.final_status("answer")["b"] == "kept"
+    assert ledger.reasons() == {"clean:non_answer": 1, "ingest:read": 4}
+    assert ledger.accounted("answer") == {"a", "b", "c"}

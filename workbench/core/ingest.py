@@ -40,12 +40,9 @@ collides with ``respondent_id``, ``source`` or ``row`` is kept as
 
 from __future__ import annotations
 
-import gc
 from collections import Counter
-from collections.abc import Callable, Iterator
-from contextlib import contextmanager
+from collections.abc import Callable
 from dataclasses import dataclass, field
-from itertools import repeat
 from pathlib import Path
 
 import numpy as np
@@ -204,23 +201,6 @@ class _Parts:
     dropped: list[tuple[str, str, str, int, str, str, str, str]] = field(default_factory=list)
     questions: dict[str, int] = field(default_factory=dict)
     count: int = 0
-
-
-@contextmanager
-def _no_gc() -> Iterator[None]:
-    """Pause the cyclic garbage collector while millions of ledger tuples are built.
-
-    Each allocation burst triggers full collections that walk every live
-    object and free nothing (tuples of strings hold no cycles); pausing them
-    halves the cost of the ledger. The previous state is restored.
-    """
-    was_enabled = gc.isenabled()
-    gc.disable()
-    try:
-        yield
-    finally:
-        if was_enabled:
-            gc.enable()
 
 
 def _strings(values: object) -> pd.Series:
@@ -506,23 +486,13 @@ def _assemble(
     return respondents, answers, Counter(sources[p] for p, _code, _message in dup_flags)
 
 
-#: Ledger events are built this many at a time, so the temporary lists stay small.
-_SLICE = 200_000
-
-
 def _emit(
     ledger: Ledger, level: str, keys: Callable[[int, int], list[str]], sources: np.ndarray, rows: np.ndarray,
     pick: np.ndarray, codes: np.ndarray, messages: np.ndarray,
 ) -> None:
     """One ``kept`` event per entity; ``codes[pick[i]]`` and ``messages[pick[i]]`` describe entity i."""
-    with _no_gc():
-        for lo in range(0, len(rows), _SLICE):
-            hi = min(lo + _SLICE, len(rows))
-            chosen = pick[lo:hi]
-            ledger.extend(list(zip(
-                repeat(level), keys(lo, hi), sources[lo:hi].tolist(), rows[lo:hi].tolist(), repeat(STAGE),
-                repeat("kept"), codes[chosen].tolist(), messages[chosen].tolist(),
-            )))
+    n = len(rows)
+    ledger.bulk(level, keys(0, n), sources, rows, STAGE, "kept", codes[pick], messages[pick])
 
 
 # --------------------------------------------------------------------------- the stage

@@ -5,59 +5,164 @@ Each event says which entity (an input row or an answer), which stage, a status
 entity may collect several events (an answer can be flagged by clean and kept
 by identify); its final status is the most severe one. The invariant the tests
 hold the pipeline to: every input row and every answer has at least one event.
+
+Events are stored column-wise in blocks: a stage that accounts for a million
+answers hands over arrays (:meth:`Ledger.bulk`) rather than a million tuples,
+which keeps the ledger of a 1M-row run to tens of megabytes. Single events
+(:meth:`Ledger.row`, :meth:`Ledger.answer`, :meth:`Ledger.extend`) are
+gathered into a block when the next bulk block or a read arrives, so the order
+of events is kept.
 """
 
 from __future__ import annotations
 
-from collections import Counter
-from dataclasses import dataclass, field
-from typing import Literal
+from collections.abc import Iterable, Sequence
+from typing import Any, Literal
 
+import numpy as np
 import pandas as pd
 
 Status = Literal["kept", "flagged", "dropped"]
 Level = Literal["row", "answer"]
+Event = tuple[str, str, str, int, str, str, str, str]
 _SEVERITY = {"kept": 0, "flagged": 1, "dropped": 2}
+_STATUS_BY_SEVERITY = np.array(["kept", "flagged", "dropped"], dtype=object)
 
 LEDGER_COLUMNS = ["level", "key", "source", "row", "stage", "status", "code", "message"]
 
 
-@dataclass
-class Ledger:
-    """Append-only list of events; cheap to append, turned into a table at the end."""
+def _column(value: Any, length: int) -> np.ndarray:
+    if isinstance(value, str) or np.isscalar(value):
+        out = np.empty(length, dtype=object)
+        out[:] = value
+        return out
+    array = np.asarray(value, dtype=object)
+    if len(array) != length:
+        raise ValueError(f"ledger column has {len(array)} values for {length} keys")
+    return array
 
-    events: list[tuple[str, str, str, int, str, str, str, str]] = field(default_factory=list)
+
+class Ledger:
+    """Append-only account of events, stored in column blocks."""
+
+    def __init__(self, events: Iterable[Event] | None = None) -> None:
+        self._blocks: list[pd.DataFrame] = []
+        self._loose: list[Event] = list(events or [])
+
+    # ------------------------------------------------------------------ writing
 
     def row(self, key: str, source: str, row: int, stage: str, status: Status, code: str, message: str) -> None:
         """Record an event for one input row (``row`` is the 1-based line or record number)."""
-        self.events.append(("row", key, source, row, stage, status, code, message))
+        self._loose.append(("row", key, source, row, stage, status, code, message))
 
     def answer(self, key: str, source: str, row: int, stage: str, status: Status, code: str, message: str) -> None:
         """Record an event for one answer (``key`` is its answer id)."""
-        self.events.append(("answer", key, source, row, stage, status, code, message))
+        self._loose.append(("answer", key, source, row, stage, status, code, message))
 
-    def extend(self, events: list[tuple[str, str, str, int, str, str, str, str]]) -> None:
-        self.events.extend(events)
+    def extend(self, events: Iterable[Event]) -> None:
+        """Record events given as ``(level, key, source, row, stage, status, code, message)`` tuples."""
+        self._loose.extend(events)
+
+    def bulk(
+        self,
+        level: Level,
+        keys: Sequence[str] | np.ndarray,
+        source: str | Sequence[str] | np.ndarray,
+        row: int | Sequence[int] | np.ndarray,
+        stage: str,
+        status: Status | Sequence[str] | np.ndarray,
+        code: str | Sequence[str] | np.ndarray,
+        message: str | Sequence[str] | np.ndarray,
+    ) -> None:
+        """Record one event per key; every other argument is one value for all or one per key."""
+        n = len(keys)
+        if n == 0:
+            return
+        self._flush()
+        rows = np.full(n, row, dtype=np.int64) if np.isscalar(row) else np.asarray(row, dtype=np.int64)
+        self._blocks.append(
+            pd.DataFrame(
+                {
+                    "level": _column(level, n),
+                    "key": _column(keys, n),
+                    "source": _column(source, n),
+                    "row": rows,
+                    "stage": _column(stage, n),
+                    "status": _column(status, n),
+                    "code": _column(code, n),
+                    "message": _column(message, n),
+                },
+                copy=False,
+            )
+        )
+
+    def _flush(self) -> None:
+        if self._loose:
+            block = pd.DataFrame(self._loose, columns=LEDGER_COLUMNS)
+            block["row"] = block["row"].astype(np.int64)
+            self._blocks.append(block)
+            self._loose = []
+
+    # ------------------------------------------------------------------ positions
+
+    def __len__(self) -> int:
+        return sum(len(b) for b in self._blocks) + len(self._loose)
+
+    def mark(self) -> int:
+        """A position to come back to with :meth:`truncated`: the number of events so far."""
+        return len(self)
+
+    def truncated(self, mark: int) -> Ledger:
+        """A new ledger holding the first ``mark`` events."""
+        copy = Ledger()
+        frame = self.frame()
+        if mark:
+            copy._blocks = [frame.iloc[:mark]]
+        return copy
+
+    # ------------------------------------------------------------------ reading
+
+    @property
+    def events(self) -> list[Event]:
+        """Every event as a tuple (convenient for small ledgers and tests)."""
+        frame = self.frame()
+        return [tuple(r) for r in frame.itertuples(index=False, name=None)]  # type: ignore[misc]
 
     def frame(self) -> pd.DataFrame:
         """All events as a table with :data:`LEDGER_COLUMNS`."""
-        return pd.DataFrame(self.events, columns=LEDGER_COLUMNS)
+        self._flush()
+        if not self._blocks:
+            return pd.DataFrame({c: pd.Series(dtype=np.int64 if c == "row" else object) for c in LEDGER_COLUMNS})
+        if len(self._blocks) > 1:
+            self._blocks = [pd.concat(self._blocks, ignore_index=True, copy=False)]
+        return self._blocks[0]
 
     def final_status(self, level: Level) -> dict[str, str]:
         """The most severe status per entity of one level."""
-        result: dict[str, str] = {}
-        for lvl, key, _s, _r, _st, status, _c, _m in self.events:
-            if lvl == level and _SEVERITY[status] >= _SEVERITY.get(result.get(key, "kept"), 0):
-                result[key] = status
-        return result
+        frame = self.frame()
+        part = frame[frame["level"] == level]
+        if part.empty:
+            return {}
+        severity = part["status"].map(_SEVERITY).to_numpy(dtype=np.int8)
+        worst = pd.Series(severity, index=part["key"].to_numpy()).groupby(level=0, sort=False).max()
+        return dict(zip(worst.index, _STATUS_BY_SEVERITY[worst.to_numpy()], strict=True))
 
     def counts(self) -> dict[str, dict[str, int]]:
         """``{"row": {"kept": n, ...}, "answer": {...}}`` over final statuses."""
-        return {level: dict(Counter(self.final_status(level).values())) for level in ("row", "answer")}
+        result: dict[str, dict[str, int]] = {}
+        for level in ("row", "answer"):
+            statuses = pd.Series(list(self.final_status(level).values()), dtype=object)
+            result[level] = {str(k): int(v) for k, v in statuses.value_counts(sort=False).items()}
+        return result
 
     def reasons(self) -> dict[str, int]:
         """How many events carry each ``stage:code``, for the manifest."""
-        return dict(Counter(f"{e[4]}:{e[6]}" for e in self.events))
+        frame = self.frame()
+        if frame.empty:
+            return {}
+        sizes = frame.groupby(["stage", "code"], sort=True).size()
+        return {f"{stage}:{code}": int(n) for (stage, code), n in sizes.items()}
 
     def accounted(self, level: Level) -> set[str]:
-        return {e[1] for e in self.events if e[0] == level}
+        frame = self.frame()
+        return set(frame.loc[frame["level"] == level, "key"].tolist())

@@ -67,7 +67,7 @@ def _profiles_for(study: Study) -> dict[str, Any]:
 def _run_stage(stage: str, out: RunOutputs, reporter: Reporter) -> None:
     reporter.update(stage, 0, 0, f"{stage} started")
     begin = time.perf_counter()
-    out.ledger_marks[stage] = len(out.ledger.events)
+    out.ledger_marks[stage] = out.ledger.mark()
     study, decisions, ledger = out.study, out.decisions, out.ledger
     if stage == "ingest":
         from workbench.core.ingest import read_corpus
@@ -152,12 +152,12 @@ def rerun_from(
         raise SettingsError(f"unknown stage; stages are {', '.join(STAGES)}")
     start, stop = STAGES.index(stage), STAGES.index(until)
     reporter = reporter or Reporter()
-    mark = previous.ledger_marks.get(stage, len(previous.ledger.events))
+    mark = previous.ledger_marks.get(stage, previous.ledger.mark())
     out = replace(
         previous,
         study=study or previous.study,
         decisions=decisions if decisions is not None else previous.decisions,
-        ledger=Ledger(list(previous.ledger.events[:mark])),
+        ledger=previous.ledger.truncated(mark),
         snapshots={s: previous.snapshots[s] for s in STAGES[:start] if s in previous.snapshots},
         ledger_marks={s: previous.ledger_marks[s] for s in STAGES[:start] if s in previous.ledger_marks},
         timings={s: previous.timings[s] for s in STAGES[:start] if s in previous.timings},
