@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import os
 from collections.abc import Iterator
 
 import pytest
@@ -13,10 +14,12 @@ from workbench.core.profiles import available_languages
 def _cache_dir(tmp_path_factory: pytest.TempPathFactory) -> Iterator[None]:
     """Lemma tables and simplemma tries are built into a temporary cache, never the user's.
 
-    Session-scoped so each table is built once per test run, not once per test.
+    Session-scoped so each table is built once per test run, not once per test. A developer may
+    name a folder to reuse between runs in ``TERMLOOM_TEST_CACHE_DIR`` (CI never sets it).
     """
     mp = pytest.MonkeyPatch()
-    mp.setenv("TERMLOOM_CACHE_DIR", str(tmp_path_factory.mktemp("termloom-cache")))
+    reuse = os.environ.get("TERMLOOM_TEST_CACHE_DIR")
+    mp.setenv("TERMLOOM_CACHE_DIR", reuse or str(tmp_path_factory.mktemp("termloom-cache")))
     yield
     mp.undo()
 

@@ -498,7 +498,7 @@ def extract_terms(
     unique_texts = [u[1] for u in split]
 
     excluded = {k for k, v in decisions.exclude.items() if v}
-    enters = answers[ENTERS_WEIGHTING].eq(True).to_numpy()
+    enters = answers[ENTERS_WEIGHTING].eq(True).to_numpy().copy()
     if excluded:
         enters &= ~answers[ANSWER_ID].isin(excluded).to_numpy()
     weight_of_unique = np.bincount(codes[enters], minlength=len(uniques))
@@ -598,15 +598,15 @@ def _ledger_empty(answers: pd.DataFrame, ledger: Ledger) -> None:
     if not empty.any():
         return
     rows = answers.loc[empty]
-    sources = rows[SOURCE].astype(str) if SOURCE in rows else pd.Series("", index=rows.index)
-    numbers = rows[ROW] if ROW in rows else pd.Series(0, index=rows.index)
-    for key, source, row in zip(rows[ANSWER_ID].astype(str), sources, numbers, strict=True):
-        ledger.answer(
-            key,
-            source,
-            int(row) if pd.notna(row) else 0,
-            STAGE,
-            "flagged",
-            "no_terms",
-            "no term left after stop words and token rules; the answer stays out of the counts",
-        )
+    sources = rows[SOURCE].astype(str).to_numpy() if SOURCE in rows else ""
+    numbers = pd.to_numeric(rows[ROW], errors="coerce").fillna(0).astype(np.int64).to_numpy() if ROW in rows else 0
+    ledger.bulk(
+        "answer",
+        rows[ANSWER_ID].astype(str).to_numpy(),
+        sources,
+        numbers,
+        STAGE,
+        "flagged",
+        "no_terms",
+        "no term left after stop words and token rules; the answer stays out of the counts",
+    )
