@@ -58,6 +58,7 @@ import html
 import re
 import unicodedata
 from collections import Counter
+from dataclasses import dataclass
 
 import ftfy
 import pandas as pd
@@ -69,6 +70,7 @@ from workbench.core.duplicates import DUPLICATE_CODES, find_duplicates
 from workbench.core.duplicates import MESSAGES as DUPLICATE_MESSAGES
 from workbench.core.errors import SettingsError
 from workbench.core.ledger import Ledger
+from workbench.core.mapping import LocalMapper, Mapper, fingerprint
 from workbench.core.nonanswer import JUNK_CODES, MESSAGES, NonAnswerRules, phrase_key
 from workbench.core.pii import check_regions, default_regions, mask_personal_data
 from workbench.core.profiles import LanguageProfile
@@ -78,7 +80,6 @@ from workbench.core.settings import Study
 STAGE = "clean"
 #: Codes that keep an answer out of weighting (unless the study lets flagged answers in).
 WEIGHTING_JUNK = JUNK_CODES | frozenset(DUPLICATE_CODES)
-_PROGRESS_EVERY = 5000
 
 _KEEP_FORMAT = {0x200C, 0x200D}
 
@@ -159,6 +160,51 @@ def _regions(study: Study) -> tuple[str, ...]:
     return tuple(regions) if regions else default_regions(study.languages.expected)
 
 
+#: What cleaning one raw text gives: masked clean text, masks, content code, repair notes.
+CleanedText = tuple[str, tuple[tuple[str, int, int], ...], str | None, tuple[str, ...]]
+
+
+@dataclass(frozen=True)
+class CleanRecipe:
+    """Everything cleaning one text depends on (picklable; see ``mapping.py``)."""
+
+    kinds: tuple[str, ...]
+    regions: tuple[str, ...]
+    phrases: tuple[str, ...]
+    min_chars: int
+    repair_mojibake: bool
+    key: str = ""
+
+    def build(self) -> tuple[NonAnswerRules, CleanRecipe]:
+        return NonAnswerRules(self.phrases, self.min_chars), self
+
+
+def clean_recipe(study: Study, profiles: dict[str, LanguageProfile]) -> CleanRecipe:
+    """The recipe of a study's per-text cleaning.
+
+    Raises
+    ------
+    SettingsError
+        An unknown phone region in ``clean.phone_regions``.
+    """
+    settings = study.clean
+    parts = (tuple(settings.mask), _regions(study), tuple(_phrases(study, profiles)), settings.min_chars,
+             settings.repair_mojibake)
+    return CleanRecipe(*parts, key=fingerprint("clean", *parts))
+
+
+def clean_texts(texts: list[str], kit: tuple[NonAnswerRules, CleanRecipe]) -> list[CleanedText]:
+    """Normalise, mask and classify each raw text: the per-text part of the stage (pure, no ledger)."""
+    rules, recipe = kit
+    kinds, regions, repair = recipe.kinds, recipe.regions, recipe.repair_mojibake
+    out: list[CleanedText] = []
+    for raw in texts:
+        text, notes = normalise_text(raw, repair)
+        masked, masks = mask_personal_data(text, kinds, regions) if kinds else (text, [])
+        out.append((masked, tuple(masks), rules.classify(masked), tuple(notes)))
+    return out
+
+
 def _as_text(value: object) -> str:
     if isinstance(value, str):
         return value
@@ -174,11 +220,15 @@ def clean_answers(
     decisions: Decisions,
     ledger: Ledger,
     reporter: Reporter,
+    *,
+    mapper: Mapper | None = None,
 ) -> pd.DataFrame:
     """Add the clean columns to a copy of the answers table.
 
     Each distinct raw text is normalised, masked and classified once (survey
-    answers repeat a lot); duplicates are then found over the whole table.
+    answers repeat a lot) by :func:`clean_texts`, run by ``mapper`` (in this
+    process by default; see ``mapping.py``); duplicates are then found over
+    the whole table.
     Every answer gets at least one ledger event: one per flag (``flagged``),
     per mask or repair (``kept``), or a single ``cleaned`` event.
 
@@ -188,24 +238,21 @@ def clean_answers(
         An unknown phone region in ``clean.phone_regions``.
     """
     settings = study.clean
-    regions = _regions(study)
-    rules = NonAnswerRules(_phrases(study, profiles), settings.min_chars)
-    kinds = tuple(settings.mask)
+    recipe = clean_recipe(study, profiles)
     out = answers.copy()
     n = len(out)
     raws = [_as_text(v) for v in out[C.RAW_TEXT].tolist()] if n else []
 
-    cache: dict[str, tuple[str, tuple[tuple[str, int, int], ...], str | None, tuple[str, ...]]] = {}
     reporter.update(STAGE, 0, n, "normalising and masking")
-    for i, raw in enumerate(raws):
-        if raw not in cache:
-            text, notes = normalise_text(raw, settings.repair_mojibake)
-            masked, masks = mask_personal_data(text, kinds, regions) if kinds else (text, [])
-            cache[raw] = (masked, tuple(masks), rules.classify(masked), tuple(notes))
-        if i % _PROGRESS_EVERY == 0 and i:
-            reporter.update(STAGE, i, n, f"{len(cache):,} distinct texts")
+    distinct = list(dict.fromkeys(raws))
+    mapped = (mapper or LocalMapper()).map(
+        clean_texts, distinct, recipe, stage=STAGE, what=f"normalising and masking {len(distinct):,} distinct texts",
+        reporter=reporter,
+    )
+    cache = dict(zip(distinct, mapped, strict=True))
+    del distinct, mapped
     results = [cache[raw] for raw in raws]
-    clean_texts = [r[0] for r in results]
+    texts = [r[0] for r in results]
     content = [r[2] for r in results]
 
     reporter.update(STAGE, n, n, "looking for duplicates")
@@ -215,7 +262,7 @@ def clean_answers(
     duplicates = find_duplicates(
         respondents,
         questions,
-        clean_texts,
+        texts,
         [code is None or code not in WEIGHTING_JUNK for code in content],
         settings.near_duplicate_min_chars,
         settings.near_duplicate,
@@ -283,7 +330,7 @@ def clean_answers(
         enters_col.append(enters)
     ledger.extend(events)
 
-    out[C.CLEAN_TEXT] = pd.Series(clean_texts, index=out.index, dtype=str)
+    out[C.CLEAN_TEXT] = pd.Series(texts, index=out.index, dtype=str)
     out[C.MASKS] = pd.Series([list(r[1]) for r in results], index=out.index, dtype=object)
     out[C.FLAGS] = pd.Series(flags_col, index=out.index, dtype=object)
     out[C.DUPLICATE_OF] = pd.Series(dup_col, index=out.index, dtype=object)
