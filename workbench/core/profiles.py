@@ -27,6 +27,7 @@ from pathlib import Path
 from typing import Literal
 
 from workbench.core.errors import SettingsError, did_you_mean
+from workbench.core.settings import check_key_depth
 
 Lemmatizer = Literal["spacy-lookup", "simplemma", "none"]
 #: Keys ``profile.toml`` may hold; anything else is a typo worth reporting.
@@ -83,11 +84,17 @@ def read_word_list(path: Path) -> list[str]:
 
 def _read_toml(path: Path) -> dict:
     try:
-        return tomllib.loads(path.read_text(encoding="utf-8"))
+        text = path.read_text(encoding="utf-8")
+        check_key_depth(text, str(path))
+        return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise SettingsError(f"{path}: TOML syntax error: {exc}; fix the file at that place") from None
     except UnicodeDecodeError:
         raise SettingsError(f"{path}: not UTF-8; save it as UTF-8") from None
+    except RecursionError:
+        raise SettingsError(f"{path}: tables or lists nest too deeply; a profile needs one or two levels") from None
+    except ValueError:  # tomllib lets int()'s 4,300-digit limit through as a ValueError
+        raise SettingsError(f"{path}: an integer has thousands of digits; fix the value") from None
 
 
 @functools.lru_cache(maxsize=64)

@@ -227,8 +227,19 @@ class Study(_Section):
 # --------------------------------------------------------------------------- loading
 
 
+def _shown(value: Any) -> str:
+    """A short repr for messages: a 5 MB string or a table nested 500 deep stays one readable line."""
+    import reprlib
+
+    short = reprlib.Repr()
+    short.maxstring, short.maxother, short.maxlevel, short.maxdict, short.maxlist = 80, 80, 2, 4, 6
+    return short.repr(value)
+
+
 def _describe(error: dict[str, Any], where: str) -> str:
     loc = ".".join(str(part) for part in error["loc"])
+    if len(loc) > 120:
+        loc = loc[:117] + "..."
     kind = error["type"]
     if kind == "extra_forbidden":
         parent = _model_at(error["loc"][:-1])
@@ -237,10 +248,10 @@ def _describe(error: dict[str, Any], where: str) -> str:
         valid = ", ".join(sorted(parent.model_fields)) if parent else ""
         return f"{where}: unknown key '{loc}'{hint}; valid keys here: {valid}"
     if kind == "literal_error":
-        return f"{where}: '{loc}' {error['msg'].lower()}; got {error.get('input')!r}"
+        return f"{where}: '{loc}' {error['msg'].lower()}; got {_shown(error.get('input'))}"
     if kind == "missing":
         return f"{where}: '{loc}' is required"
-    return f"{where}: '{loc}': {error['msg']}; got {error.get('input')!r}"
+    return f"{where}: '{loc}': {error['msg']}; got {_shown(error.get('input'))}"
 
 
 def _model_at(loc: tuple[Any, ...]) -> type[BaseModel] | None:
@@ -273,10 +284,16 @@ def parse_override(text: str) -> tuple[list[str], Any]:
     path = [part.strip() for part in key.strip().split(".") if part.strip()]
     if not path:
         raise SettingsError(f"override '{text}' has no key before '='; use e.g. weigh.tf=log")
+    if len(path) > MAX_KEY_PARTS:
+        raise SettingsError(
+            f"override key '{key[:60]}...' has {len(path)} parts; study keys have at most three (e.g. terms.expressions.en)"
+        )
     try:
         value = tomllib.loads(f"v = {raw.strip()}")["v"]
-    except tomllib.TOMLDecodeError:
+    except (tomllib.TOMLDecodeError, RecursionError):
         value = raw.strip()
+    except ValueError:  # an integer beyond Python's 4,300-digit conversion limit
+        raise SettingsError(f"override '{key.strip()}' has a number with {len(raw.strip()):,} digits; use a sensible value") from None
     return path, value
 
 
@@ -314,12 +331,36 @@ def read_study_table(path: Path) -> dict[str, Any]:
         text = raw.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
         raise SettingsError(f"study file {path} is not UTF-8 (byte {exc.start}); save it as UTF-8") from None
+    check_key_depth(text, f"study file {path}")
     try:
         return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise SettingsError(f"study file {path}: TOML syntax error: {exc}; fix the file at that place") from None
     except RecursionError:
         raise SettingsError(f"study file {path} nests tables too deeply; a study needs two levels at most") from None
+    except ValueError:  # tomllib lets int()'s 4,300-digit limit through as a ValueError
+        raise SettingsError(f"study file {path} holds an integer with thousands of digits; use a sensible value") from None
+
+
+#: Most parts a dotted TOML key or table header may have. A study needs three;
+#: tomllib's work and memory grow with the square of a key's parts (a 60 KB line
+#: ``a.b.b.b...`` costs gigabytes), so longer keys are refused before parsing.
+MAX_KEY_PARTS = 32
+_KEY_LINE = re.compile(r"^[ \t]*(?:\[\[?([^\]\n]*)\]|([\w\-. \t\"']*)=)", re.MULTILINE)
+
+
+def check_key_depth(text: str, where: str) -> None:
+    """Raise :class:`SettingsError` when a key or table header has more than :data:`MAX_KEY_PARTS` parts."""
+    if text.count(".") <= MAX_KEY_PARTS:
+        return
+    for match in _KEY_LINE.finditer(text):
+        key = match.group(1) if match.group(1) is not None else match.group(2)
+        if key.count(".") >= MAX_KEY_PARTS:
+            line = text.count("\n", 0, match.start()) + 1
+            raise SettingsError(
+                f"{where}: the key on line {line} has {key.count('.') + 1:,} dotted parts; "
+                "study keys have two or three (e.g. weigh.tf) — fix that line"
+            )
 
 
 def _validate(data: dict[str, Any], path: Path | None) -> tuple[Study | None, list[str]]:
