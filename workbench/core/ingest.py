@@ -501,6 +501,7 @@ def _emit(
 _NOTES = {
     "ragged_row": "{n:,} records had more fields than the header (extra fields dropped; ledger code ragged_row)",
     "bad_json": "{n:,} lines were not JSON objects and were skipped (ledger code bad_json)",
+    "lone_surrogate": "{n:,} lines held half a UTF-16 surrogate pair, replaced by U+FFFD (ledger code lone_surrogate)",
     "undecodable": "{n:,} files could not be decoded and were skipped (ledger code undecodable)",
     "unreadable": "{n:,} files could not be read and were skipped (ledger code unreadable)",
     "cell_truncated": "{n:,} cells over {limit:,} characters were truncated (ledger code cell_truncated)",

@@ -10,6 +10,7 @@ written, nested arrays and objects as compact JSON.
 from __future__ import annotations
 
 import json
+import re
 from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
@@ -35,6 +36,26 @@ def _text(value: Any) -> str:
     if isinstance(value, int | float):
         return json.dumps(value)
     return json.dumps(value, ensure_ascii=False, separators=(",", ":"))
+
+
+#: A JSON escape of a UTF-16 surrogate (RFC 8259 §7); ``json`` pairs valid ones and
+#: leaves a lone half in the string, which Arrow (UTF-8 only) refuses.
+_SURROGATE = re.compile(r"\\u[dD][89a-fA-F]")
+_LONE = re.compile("[\ud800-\udfff]")
+
+
+def _without_lone_surrogates(value: dict[str, Any]) -> tuple[dict[str, str], int]:
+    """The record's keys and values as text, each lone surrogate replaced by U+FFFD; and how many there were."""
+    found = 0
+    clean: dict[str, str] = {}
+    for key, item in value.items():
+        pair = []
+        for text in (str(key), _text(item)):
+            hits = len(_LONE.findall(text))
+            found += hits
+            pair.append(_LONE.sub("\ufffd", text) if hits else text)
+        clean[pair[0]] = pair[1]
+    return clean, found
 
 
 def open_jsonl(source: Source, report: ImportReport, *, chunk_rows: int, full: bool = True) -> Opened:
@@ -72,6 +93,14 @@ def _chunks(path: Path, codec: str, chunk_rows: int) -> Iterator[Chunk]:
                 ))
                 continue
             count = len(rows)
+            if "\\u" in line and _SURROGATE.search(line):
+                value, found = _without_lone_surrogates(value)
+                if found:
+                    problems.append(RowProblem(
+                        number, "flagged", "lone_surrogate",
+                        f"line {number} holds {found} \\u escape(s) of half a UTF-16 pair, which no text can store; "
+                        "each became U+FFFD (\ufffd), the rest of the line was read", count,
+                    ))
             for key, item in value.items():
                 column = columns.get(key)
                 if column is None:
