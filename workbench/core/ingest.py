@@ -136,7 +136,8 @@ def _check_not_study(study: Study, number: int, source: Source) -> None:
 
 
 def _listing(columns: list[str]) -> str:
-    shown = ", ".join(columns[:30])
+    # a "column name" can be a whole data line when the header is missing; keep the message one readable line
+    shown = ", ".join(c if len(c) <= 60 else c[:57] + "..." for c in columns[:30])
     return shown + (f" ... ({len(columns) - 30} more)" if len(columns) > 30 else "")
 
 

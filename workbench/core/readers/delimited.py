@@ -133,9 +133,17 @@ def open_delimited(
     if how not in ("set in the study", "TSV", "sniffed"):
         report.notes.append(f"delimiter: {_shown(delimiter)} ({how})")
 
+    if len(sample) >= SAMPLE_CHARS and "\n" not in sample and "\r" not in sample:
+        raise InputError(
+            f"{path}: the first {SAMPLE_CHARS:,} characters hold no line break, so there is no header row; "
+            "a CSV export starts with one line of column names — point sources.path at the exported answers"
+        )
     reader = csv.reader(io.StringIO(sample, newline=""), delimiter=delimiter)
     # like the parsers, skip blank and whitespace-only lines before the header
-    header = next((r for r in reader if r and not (len(r) == 1 and not r[0].strip())), None)
+    try:
+        header = next((r for r in reader if r and not (len(r) == 1 and not r[0].strip())), None)
+    except csv.Error as exc:  # e.g. a header cell over the csv module's field limit
+        raise InputError(f"{path}: the header row cannot be read ({exc}); the first line must name the columns") from None
     if header is None:
         raise InputError(f"{path} holds only blank lines; export the data again with a header row and answers")
     # physical lines up to the end of the header; pyarrow skips lines, not records
