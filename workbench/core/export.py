@@ -190,22 +190,58 @@ def _previous_files(out_dir: Path) -> set[str]:
     return found
 
 
+def study_inputs(study: Any) -> dict[Path, str]:
+    """The study's own files (resolved) and what names each: an export must never write over one."""
+    found: dict[Path, str] = {}
+    for number, source in enumerate(study.sources, start=1):
+        found[Path(source.path).resolve()] = f"sources[{number}].path"
+    if study.study_path is not None:
+        found[Path(study.study_path).resolve()] = "the study file"
+        found[Path(study.decisions_path).resolve()] = "the study's decision store"
+    if study.compare.glossary is not None:
+        found[Path(study.compare.glossary).resolve()] = "compare.glossary"
+    for path in study.compare.dictionaries:
+        found[Path(path).resolve()] = "compare.dictionaries"
+    return found
+
+
+def _input_at(path: Path, inputs: dict[Path, str]) -> str:
+    """What names ``path`` (or a folder source holding it) among ``inputs``, or ``""``."""
+    if not inputs:
+        return ""
+    target = path.resolve()
+    for candidate in (target, *target.parents):
+        what = inputs.get(candidate)
+        if what and (candidate == target or candidate.is_dir()):
+            return f"{candidate} ({what})"
+    return ""
+
+
 class _Sink:
     """Collects what the export wrote and the notes it made; knows the requested formats."""
 
-    def __init__(self, root: Path, formats: Iterable[str], reporter: Reporter, total: int) -> None:
+    def __init__(
+        self, root: Path, formats: Iterable[str], reporter: Reporter, total: int, inputs: dict[Path, str] | None = None
+    ) -> None:
         self.root = root
         self.formats = set(formats)
         self.reporter = reporter
         self.files: list[Path] = []
         self.notes: list[str] = []
         self.total = total
+        self.inputs = inputs or {}
 
     def wants(self, *formats: str) -> bool:
         return bool(self.formats.intersection(formats))
 
     def path(self, *parts: str) -> Path:
         path = self.root.joinpath(*parts)
+        clash = _input_at(path, self.inputs)
+        if clash:
+            raise OutputError(
+                f"writing {path} would overwrite {clash}, an input of this study; choose an output folder "
+                "that holds none of the study's files (--out)"
+            )
         try:
             path.parent.mkdir(parents=True, exist_ok=True)
         except OSError as exc:
@@ -257,14 +293,15 @@ def write_run(out_dir: Path, run: RunOutputs, reporter: Reporter) -> list[Path]:
         ("compare tables", lambda sink: _write_table_group(sink, "compare", _compare_tables(run), dict(table_notes or {}))),
         ("charts", lambda sink: _write_charts(sink, run)),
     ]
-    sink = _Sink(out_dir, run.study.export.formats, reporter, total=len(steps) + 1)
+    inputs = study_inputs(run.study)
+    sink = _Sink(out_dir, run.study.export.formats, reporter, total=len(steps) + 1, inputs=inputs)
     try:
         for number, (label, write) in enumerate(steps):
             reporter.update(STAGE, number, sink.total, f"writing {label}")
             write(sink)
         reporter.update(STAGE, len(steps), sink.total, "writing the manifest")
         written = {p.resolve().relative_to(out_dir.resolve()).as_posix() for p in sink.files}
-        removed = _remove_stale(out_dir, previous - written - {MANIFEST_NAME})
+        removed = _remove_stale(out_dir, previous - written - {MANIFEST_NAME}, inputs)
         content = run_content(run, sink.notes, removed, time.perf_counter() - begin)
         manifest = write_manifest(out_dir, content, sink.files)
     except OSError as exc:
@@ -282,11 +319,11 @@ def _check_dense_sizes(run: RunOutputs) -> None:
         check_dense(name, matrix.shape, settings.dense_limit)
 
 
-def _remove_stale(out_dir: Path, stale: set[str]) -> list[str]:
+def _remove_stale(out_dir: Path, stale: set[str], inputs: dict[Path, str] | None = None) -> list[str]:
     removed = []
     for relative in sorted(stale):
         path = out_dir / relative
-        if path.is_file():
+        if path.is_file() and not _input_at(path, inputs or {}):  # an old manifest may list a file now used as input
             path.unlink()
             removed.append(relative)
             parent = path.parent
