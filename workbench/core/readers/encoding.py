@@ -187,6 +187,18 @@ def scan_file(path: Path, forced: str = "auto", *, what: str = "CSV file", full:
         with path.open("rb") as handle:
             handle.seek(max(bad.offset - HEAD_BYTES // 2, 0))
             sample = head + b"\n" + handle.read(HEAD_BYTES)
+    if _mostly_utf8(sample):
+        # Mixed encodings (a UTF-8 export with lines pasted from a Windows-1252 tool): no single
+        # encoding reads every line. cp1252 reads the legacy lines right and turns the UTF-8 ones
+        # into classic mojibake ("fÃ¼r"), which clean repairs with a ledger entry per answer;
+        # any other code page would garble the UTF-8 lines past repair.
+        _sha, _n, still_bad = _pass(path, "cp1252", full, digest=False)
+        if still_bad is None:
+            return Scan("cp1252", sha, newlines, [
+                f"warning: mixed encodings: most non-ASCII text is UTF-8 but byte 0x{bad.byte:02X} on line {bad.line} "
+                "is not; read as cp1252 so that clean repairs the UTF-8 lines (ledger code repaired_mojibake); "
+                "re-save the file as UTF-8 to be sure"
+            ])
     chosen, best = guess_legacy_encoding(sample)
     tried = []
     for codec in dict.fromkeys(c for c in (chosen, "cp1252") if c):
@@ -206,6 +218,19 @@ def scan_file(path: Path, forced: str = "auto", *, what: str = "CSV file", full:
         f"is not UTF-8 and the file is not {' or '.join(tried) or 'cp1252'} either; set sources.encoding to the "
         "file's encoding or re-export it as UTF-8"
     )
+
+
+def _mostly_utf8(sample: bytes) -> bool:
+    """Whether a sample that is not valid UTF-8 still holds mostly valid UTF-8 non-ASCII characters.
+
+    In a legacy code page a valid UTF-8 sequence is an accident (a lead byte
+    followed by the right continuation bytes); in a file that mixes encodings
+    a good share of the non-ASCII characters are such sequences.
+    """
+    text = sample.decode("utf-8", "replace")
+    invalid = text.count("\ufffd")
+    valid = len(text) - len(text.encode("ascii", "ignore")) - invalid
+    return valid >= 3 and valid >= 0.2 * (valid + invalid)
 
 
 def decode_bytes(data: bytes, forced: str = "auto", where: str = "file", what: str = "text file") -> tuple[str, str, str | None]:
