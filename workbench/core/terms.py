@@ -61,6 +61,7 @@ from workbench.core.lemmas import (
     resolve_overrides,
 )
 from workbench.core.ledger import Ledger
+from workbench.core.mapping import LocalMapper, Mapper, fingerprint
 from workbench.core.phrases import CONTENT, EDGE, MIDDLE, UNIGRAM, ExpressionMatcher, Unit, assemble
 from workbench.core.pii import PLACEHOLDER_RE
 from workbench.core.profiles import LanguageProfile, load_profile
@@ -71,8 +72,6 @@ from workbench.core.stopwords import StopList, effective_stop_list
 STAGE = "terms"
 #: Flag bit (beside the phrase flags) marking a unit removed as a stop word.
 STOP = 8
-#: Distinct texts per progress report / cancel check.
-_CHUNK = 5000
 
 # Characters that may start an emoji or a placeholder; only texts holding one
 # take the slower path that puts spaces around them before tokenising.
@@ -429,6 +428,123 @@ def make_termer(
     )
 
 
+# --------------------------------------------------------------------------- per-text work
+
+
+@dataclass(frozen=True)
+class TermsRecipe:
+    """Everything turning one (language, text) into terms depends on (picklable; see ``mapping.py``).
+
+    ``present`` are the languages the answers carry, sorted; ``profiles``
+    holds the profile of each real language among them and, when only
+    ``und`` is present, of each expected language (whose stop lists ``und``
+    answers share).
+    """
+
+    study: Study
+    profiles: tuple[tuple[str, LanguageProfile], ...]
+    decisions: Decisions
+    present: tuple[str, ...]
+    key: str = ""
+
+    def build(self) -> TermsKit:
+        return TermsKit(self)
+
+
+def terms_recipe(study: Study, profiles: dict[str, LanguageProfile], decisions: Decisions, present: Sequence[str]) -> TermsRecipe:
+    """The recipe for the languages ``present`` in the answers (profiles not given are loaded)."""
+    present = tuple(sorted(set(present)))
+    real = [lang for lang in present if lang != UNDETERMINED]
+    needed = real if real or UNDETERMINED not in present else list(study.languages.expected)
+    chosen = tuple((code, profiles.get(code) or load_profile(code)) for code in needed)
+    folded = (decisions.stop_add, decisions.stop_remove, decisions.lemma)
+    key = fingerprint("terms", study.terms.model_dump(mode="json"), str(study.base_dir), chosen, folded, present)
+    return TermsRecipe(study, chosen, decisions, present, key)
+
+
+class TermsKit:
+    """The termers of one recipe, each built on first use (once per process)."""
+
+    def __init__(self, recipe: TermsRecipe) -> None:
+        self.recipe = recipe
+        self.profiles = dict(recipe.profiles)
+        self.termers: dict[str, LanguageTermer] = {}
+        self.seconds: dict[str, float] = {}
+
+    def termer(self, language: str) -> LanguageTermer:
+        if language in self.termers:
+            return self.termers[language]
+        recipe = self.recipe
+        if language == UNDETERMINED:
+            real = [lang for lang in recipe.present if lang != UNDETERMINED]
+            if real:
+                union = frozenset().union(*(self.termer(lang).stop_terms for lang in real))
+            else:
+                # Only und answers: the expected languages' stop lists, without keeping their termers.
+                union = frozenset().union(*(
+                    make_termer(code, profile, recipe.study, recipe.decisions).stop_terms
+                    for code, profile in recipe.profiles
+                ))
+            begin = time.perf_counter()
+            termer = make_termer(UNDETERMINED, None, recipe.study, recipe.decisions, und_stop_words=union)
+        else:
+            begin = time.perf_counter()
+            termer = make_termer(language, self.profiles.get(language) or load_profile(language), recipe.study,
+                                 recipe.decisions)
+        self.seconds[language] = time.perf_counter() - begin
+        self.termers[language] = termer
+        return termer
+
+
+#: Per (language, text): its terms, the stop words removed from it, the lemma overrides applied to it.
+TermedText = tuple[list[str], list[str], list[str]]
+
+
+def term_texts(items: list[tuple[str, str]], kit: TermsKit) -> list[TermedText]:
+    """Terms of each ``(language, text)``: the per-text part of the stage (pure, no ledger).
+
+    Runs of one language go to its termer together (callers group items by language).
+    """
+    out: list[TermedText] = []
+    start = 0
+    while start < len(items):
+        language = items[start][0]
+        stop = start
+        while stop < len(items) and items[stop][0] == language:
+            stop += 1
+        terms, stops, rules = kit.termer(language).terms_many([text for _lang, text in items[start:stop]])
+        out.extend(zip(terms, stops, rules, strict=True))
+        start = stop
+    return out
+
+
+@dataclass(frozen=True)
+class TermsSummary:
+    """Per present language, in build order: what the result reports about its termer."""
+
+    stop_words: dict[str, frozenset[str]]
+    backends: dict[str, str]
+    conflicts: dict[str, list[str]]
+    seconds: dict[str, float]
+
+
+def terms_summary(kit: TermsKit) -> TermsSummary:
+    """Build every present language's termer (real languages first, then ``und``) and describe them."""
+    for language in [lang for lang in kit.recipe.present if lang != UNDETERMINED]:
+        kit.termer(language)
+    if UNDETERMINED in kit.recipe.present:
+        kit.termer(UNDETERMINED)
+    order = [lang for lang in kit.recipe.present if lang != UNDETERMINED]
+    order += [UNDETERMINED] if UNDETERMINED in kit.recipe.present else []
+    termers = {lang: kit.termers[lang] for lang in order}
+    return TermsSummary(
+        stop_words={lang: t.stop_terms for lang, t in termers.items()},
+        backends={lang: t.lemmatiser.name for lang, t in termers.items()},
+        conflicts={lang: list(t.stop_list.conflicts) for lang, t in termers.items()},
+        seconds={lang: kit.seconds.get(lang, 0.0) for lang in order},
+    )
+
+
 # --------------------------------------------------------------------------- the stage
 
 
@@ -460,8 +576,14 @@ def extract_terms(
     decisions: Decisions,
     ledger: Ledger,
     reporter: Reporter,
+    *,
+    mapper: Mapper | None = None,
 ) -> TermsResult:
     """Turn every answer's ``clean_text`` into its ordered list of terms.
+
+    Each distinct (language, text) is worked out once by :func:`term_texts`,
+    run by ``mapper`` (in this process by default; see ``mapping.py``); the
+    vocabularies are then counted over the whole table.
 
     Parameters
     ----------
@@ -478,6 +600,8 @@ def extract_terms(
         supported ones).
     decisions
         ``stop_add``, ``stop_remove``, ``lemma`` and ``exclude`` decisions.
+    mapper
+        Where the per-text work runs.
 
     Returns
     -------
@@ -505,45 +629,29 @@ def extract_terms(
     all_of_unique = np.bincount(codes, minlength=len(uniques))
 
     present = sorted(set(unique_langs.tolist()))
-    real = [lang for lang in present if lang != UNDETERMINED]
-    termers: dict[str, LanguageTermer] = {}
-    seconds: dict[str, float] = {}
-    for lang in real:
-        begin = time.perf_counter()
-        profile = profiles.get(lang) or load_profile(lang)
-        termers[lang] = make_termer(lang, profile, study, decisions)
-        seconds[lang] = time.perf_counter() - begin
-        reporter.update(STAGE, 0, 0, f"{lang}: {termers[lang].lemmatiser.name}")
-    if UNDETERMINED in present:
-        begin = time.perf_counter()
-        union = frozenset().union(*(t.stop_terms for t in termers.values())) if termers else frozenset()
-        if not termers:
-            extra = [
-                make_termer(code, profiles.get(code) or load_profile(code), study, decisions).stop_terms
-                for code in study.languages.expected
-            ]
-            union = frozenset().union(*extra)
-        termers[UNDETERMINED] = make_termer(UNDETERMINED, None, study, decisions, und_stop_words=union)
-        seconds[UNDETERMINED] = time.perf_counter() - begin
+    mapper = mapper or LocalMapper()
+    recipe = terms_recipe(study, profiles, decisions, present)
+    summary = mapper.call(terms_summary, recipe)
+    for lang, backend in summary.backends.items():
+        reporter.update(STAGE, 0, 0, f"{lang}: {backend}")
 
+    # Items grouped by language (stable), so each termer gets long runs.
+    order = np.argsort(unique_langs.astype(str), kind="stable") if len(uniques) else np.empty(0, dtype=np.int64)
+    total = len(uniques)
+    mapped = mapper.map(
+        term_texts, [(unique_langs[i], unique_texts[i]) for i in order.tolist()], recipe, stage=STAGE,
+        what=f"{total:,} distinct texts", reporter=reporter,
+    )
     unique_terms: list[list[str] | None] = [None] * len(uniques)
     unique_stops: list[list[str] | None] = [None] * len(uniques)
     overrides_applied: Counter[str] = Counter()
-    total, done = len(uniques), 0
-    for lang in present:
-        termer = termers[lang]
-        idx = np.flatnonzero(unique_langs == lang)
-        for start in range(0, len(idx), _CHUNK):
-            chunk = idx[start : start + _CHUNK]
-            terms, stops, rules = termer.terms_many([unique_texts[i] for i in chunk])
-            for i, t, s, r in zip(chunk, terms, stops, rules, strict=True):
-                unique_terms[i] = t
-                unique_stops[i] = s
-                for rule in r:
-                    # every answer with this text, entering weighting or not
-                    overrides_applied[rule] += int(all_of_unique[i])
-            done += len(chunk)
-            reporter.update(STAGE, done, total, f"{lang}: {done:,} of {total:,} distinct texts")
+    for i, (t, s, r) in zip(order.tolist(), mapped, strict=True):
+        unique_terms[i] = t
+        unique_stops[i] = s
+        for rule in r:
+            # every answer with this text, entering weighting or not
+            overrides_applied[rule] += int(all_of_unique[i])
+    del mapped
 
     answers[TERMS] = [list(unique_terms[c]) for c in codes]  # type: ignore[arg-type]
 
@@ -571,13 +679,14 @@ def extract_terms(
     _ledger_empty(answers, ledger)
 
     notes: list[str] = []
-    for lang, termer in termers.items():
-        if not termer.stop_terms and lang != UNDETERMINED:
+    for lang, stop_terms in summary.stop_words.items():
+        conflicts = summary.conflicts[lang]
+        if not stop_terms and lang != UNDETERMINED:
             notes.append(f"the stop list of '{lang}' is empty: every word counts as a term")
-        if termer.stop_list.conflicts:
-            shown = ", ".join(termer.stop_list.conflicts[:5])
+        if conflicts:
+            shown = ", ".join(conflicts[:5])
             notes.append(
-                f"{lang}: {len(termer.stop_list.conflicts)} stop words are kept as terms because a removal "
+                f"{lang}: {len(conflicts)} stop words are kept as terms because a removal "
                 f"takes out their normalised form ({shown})"
             )
     reporter.update(STAGE, total, total, "terms done")
@@ -586,10 +695,10 @@ def extract_terms(
         vocabularies=vocabularies,
         stop_hits=stop_hits,
         overrides_applied=dict(sorted(overrides_applied.items())),
-        stop_words={lang: t.stop_terms for lang, t in termers.items()},
-        backends={lang: t.lemmatiser.name for lang, t in termers.items()},
+        stop_words=dict(summary.stop_words),
+        backends=dict(summary.backends),
         notes=notes,
-        seconds=seconds,
+        seconds=dict(summary.seconds),
     )
 
 
