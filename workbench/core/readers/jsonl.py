@@ -86,6 +86,12 @@ def _chunks(path: Path, codec: str, chunk_rows: int) -> Iterator[Chunk]:
                     f"line {number} is not valid JSON ({exc.msg} at column {exc.colno}); the line was skipped, the rest read",
                 ))
                 continue
+            except (RecursionError, ValueError) as exc:  # nesting past the stack; a number past int()'s digit limit
+                what = "nests arrays or objects too deeply" if isinstance(exc, RecursionError) else "holds a number with thousands of digits"
+                problems.append(RowProblem(
+                    number, "dropped", "bad_json", f"line {number} {what} to read; the line was skipped, the rest read",
+                ))
+                continue
             if not isinstance(value, dict):
                 problems.append(RowProblem(
                     number, "dropped", "bad_json",
