@@ -161,6 +161,8 @@ def check_columns(roles: Roles, columns: list[str], duplicated: dict[str, list[i
             if not hint:
                 folded = [c for c in columns if c.casefold() == name.casefold()]
                 hint = f" (did you mean '{folded[0]}'?)" if folded else ""
+            if not name.strip():
+                hint = " (a name of only spaces: header cells without a name are read as column_<position>)"
             header = " — the first line looks like data, but the file needs a header row" if _looks_like_data(columns) else ""
             raise SettingsError(
                 f"{path} has no column '{name}' (named in {key}){hint}; columns found: {_listing(columns)}{header}; "
