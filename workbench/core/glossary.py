@@ -30,8 +30,10 @@ from __future__ import annotations
 import csv
 import io
 import unicodedata
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -92,6 +94,16 @@ _CONSEQUENCE = {
 }
 
 
+def _records(reader: Any, path: Path) -> Iterator[list[str]]:
+    """The CSV records; a cell over the csv module's field limit (128 KiB) is a one-line error, not a crash."""
+    try:
+        yield from reader
+    except csv.Error as exc:
+        raise InputError(
+            f"glossary {path}: line {reader.line_num} cannot be read as CSV ({exc}); a cell holds one term — fix that line"
+        ) from None
+
+
 def read_glossary(path: Path | str, languages: list[str]) -> Glossary:
     """Read a glossary CSV (format in the module docstring).
 
@@ -124,7 +136,8 @@ def read_glossary(path: Path | str, languages: list[str]) -> Glossary:
     first_line = text.split("\n", 1)[0]
     delimiter = max((",", ";", "\t"), key=first_line.count)
     reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
-    header = [h.strip().lower() for h in next(reader)]
+    records = _records(reader, path)
+    header = [h.strip().lower() for h in next(records)]
     missing = [c for c in REQUIRED if c not in header]
     if missing:
         raise InputError(
@@ -137,7 +150,7 @@ def read_glossary(path: Path | str, languages: list[str]) -> Glossary:
     seen_rows: dict[tuple[str, str, str], int] = {}
     kept: list[tuple[str, str, str]] = []
     problems: list[tuple[int, str, str, str, str]] = []
-    for cells in reader:
+    for cells in records:
         line = reader.line_num
         if not any(c.strip() for c in cells):
             continue
