@@ -244,8 +244,9 @@ def _describe(error: dict[str, Any], where: str) -> str:
     if kind == "extra_forbidden":
         parent = _model_at(error["loc"][:-1])
         key = str(error["loc"][-1])
-        hint = did_you_mean(key, parent.model_fields) if parent else ""
-        valid = ", ".join(sorted(parent.model_fields)) if parent else ""
+        keys = [k for k in parent.model_fields if k != "study_path"] if parent else []  # set by the loader, not a key
+        hint = did_you_mean(key, keys)
+        valid = ", ".join(sorted(keys))
         return f"{where}: unknown key '{loc}'{hint}; valid keys here: {valid}"
     if kind == "literal_error":
         return f"{where}: '{loc}' {error['msg'].lower()}; got {_shown(error.get('input'))}"
@@ -314,6 +315,10 @@ def apply_overrides(data: dict[str, Any], overrides: list[str]) -> dict[str, Any
     return merged
 
 
+#: Endings of the data files a study reads; given as the study itself, they get a pointer to ``init``.
+_DATA_SUFFIXES = frozenset({".csv", ".tsv", ".tab", ".xlsx", ".xlsm", ".xls", ".jsonl", ".ndjson", ".json", ".parquet", ".pq"})
+
+
 def read_study_table(path: Path) -> dict[str, Any]:
     """Read the TOML file, mapping every failure to a one-line :class:`SettingsError`."""
     path = Path(path)
@@ -321,6 +326,11 @@ def read_study_table(path: Path) -> dict[str, Any]:
         raise SettingsError(f"study file {path} does not exist; create one with 'termloom init DATAFILE'")
     if path.is_dir():
         raise SettingsError(f"study path {path} is a folder; give the *.study.toml file inside it")
+    if path.suffix.lower() in _DATA_SUFFIXES:
+        raise SettingsError(
+            f"{path} is a data file, not a study file; start a study from it with 'termloom init {path}', "
+            "then run the *.study.toml it writes"
+        )
     try:
         raw = path.read_bytes()
     except OSError as exc:
