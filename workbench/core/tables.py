@@ -301,7 +301,12 @@ def write_xlsx(
             for name, frame in tables.items():
                 notes.extend(_write_sheets(workbook, bold, name, frame, layout[name], per_sheet))
         finally:
-            workbook.close()
+            try:
+                workbook.close()
+            except xlsxwriter.exceptions.FileCreateError as exc:
+                # XlsxWriter wraps the OSError (disk full, permission) that atomic_path turns into a one-line message
+                cause = exc.args[0] if exc.args else None
+                raise cause if isinstance(cause, OSError) else OSError(str(exc)) from None
     return path, notes
 
 
