@@ -197,7 +197,7 @@ def main() -> None:
     from workbench.core.settings import Identify
 
     print(f"defaults: min_confidence {Identify().min_confidence}, min_letters {Identify().min_letters}")
-    for name in args.detectors.split(","):
+    for name in filter(None, args.detectors.split(",")):
         if name == "lingua":
             try:
                 import lingua  # noqa: F401

@@ -52,7 +52,6 @@ from __future__ import annotations
 
 import functools
 import math
-from collections import Counter
 from collections.abc import Sequence
 from typing import Protocol
 
@@ -115,49 +114,100 @@ class Py3LangidDetector:
     def detect(self, texts: list[str], expected: list[str]) -> list[tuple[str, float]]:
         if not texts:
             return []
-        model = _langid_model()
         ptc, pc, codes = self._restricted(tuple(expected))
-        nextmove, rowbase, output = model.tk_nextmove, model._rowbase, model.tk_output
-        rows: list[int] = []
-        cols: list[int] = []
-        vals: list[int] = []
-        lengths = np.empty(len(texts), dtype=np.float32)
-        has_features = np.zeros(len(texts), dtype=bool)
-        for r, text in enumerate(texts):
-            if text.isupper():
-                text = text.lower()  # as py3langid does: all-caps text scores like lower case
-            data = text.encode("utf-8", "replace")
-            lengths[r] = len(data) or 1
-            state = 0
-            found: list[int] = []
-            for byte in data:
-                state = nextmove[rowbase[state] + byte]
-                feature = output[state]
-                if feature >= 0:
-                    found.append(feature)
-            if found:
-                has_features[r] = True
-                counts = Counter(found)
-                rows.extend([r] * len(counts))
-                cols.extend(counts.keys())
-                vals.extend(counts.values())
-        matrix = sp.csr_matrix(
-            (np.log1p(np.asarray(vals, dtype=np.float32)), (rows, cols)),
-            shape=(len(texts), ptc.shape[0]),
+        # As py3langid does: all-caps text scores like lower case.
+        data = [(t.lower() if t.isupper() else t).encode("utf-8", "replace") for t in texts]
+        rows, cols = _walk(data)
+        lengths = np.fromiter((len(d) or 1 for d in data), dtype=np.float32, count=len(data))
+        counts = sp.csr_matrix(
+            (np.ones(len(rows), dtype=np.float32), (rows, cols)), shape=(len(texts), ptc.shape[0])
         )
-        scores = np.asarray(matrix @ ptc) + pc
+        counts.sum_duplicates()
+        has_features = np.diff(counts.indptr) > 0
+        counts.data = np.log1p(counts.data)
+        scores = np.asarray(counts @ ptc) + pc
         scores /= np.sqrt(lengths)[:, None]
         scores -= scores.max(axis=1, keepdims=True)
         np.exp(scores, out=scores)
         scores /= scores.sum(axis=1, keepdims=True)
         best = scores.argmax(axis=1)
-        result: list[tuple[str, float]] = []
-        for r in range(len(texts)):
-            if not has_features[r]:
-                result.append((UND, 0.0))
-            else:
-                result.append((codes[best[r]], float(scores[r, best[r]])))
-        return result
+        return [
+            (codes[best[r]], float(scores[r, best[r]])) if has_features[r] else (UND, 0.0)
+            for r in range(len(texts))
+        ]
+
+
+#: Texts longer than this many bytes are walked one by one (a long text would
+#: keep a whole batch stepping for its length).
+_LONG_BYTES = 2000
+_BATCH_WALK = 4096
+
+
+@functools.lru_cache(maxsize=1)
+def _tables() -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    model = _langid_model()
+    # A view on the model's own table (no copy of its ~10 million entries).
+    nextmove = np.frombuffer(model.tk_nextmove, dtype=np.dtype(model.tk_nextmove.typecode))
+    rowbase = np.asarray(model._rowbase, dtype=np.int64)
+    output = np.asarray(model.tk_output, dtype=np.int64)
+    return nextmove, rowbase, output
+
+
+def _walk(data: list[bytes]) -> tuple[np.ndarray, np.ndarray]:
+    """Run py3langid's byte automaton over every text; (text row, feature) per feature hit.
+
+    The automaton is walked for a whole batch at once: texts are sorted by
+    length, and at each byte position one vectorised step moves every text
+    still that long. Each text's path is exactly the one-by-one walk's.
+    """
+    nextmove, rowbase, output = _tables()
+    rows: list[np.ndarray] = []
+    cols: list[np.ndarray] = []
+    lengths = np.fromiter((len(d) for d in data), dtype=np.int64, count=len(data))
+    order = np.argsort(lengths, kind="stable")
+    short = order[lengths[order] <= _LONG_BYTES]
+    for first in range(0, len(short), _BATCH_WALK):
+        batch = short[first : first + _BATCH_WALK]
+        size = int(lengths[batch[-1]])
+        if size == 0:
+            continue
+        matrix = np.frombuffer(b"".join(data[i].ljust(size, b"\0") for i in batch), dtype=np.uint8)
+        matrix = matrix.reshape(len(batch), size).astype(np.int64)
+        batch_lengths = lengths[batch]
+        states = np.zeros(len(batch), dtype=np.int64)
+        start = 0
+        for position in range(size):
+            # batch is sorted by length: texts shorter than position+1 are a prefix
+            while batch_lengths[start] <= position:
+                start += 1
+            live = nextmove[rowbase[states[start:]] + matrix[start:, position]]
+            states[start:] = live
+            features = output[live]
+            hit = np.flatnonzero(features >= 0)
+            if len(hit):
+                rows.append(batch[start + hit])
+                cols.append(features[hit])
+    for index in order[lengths[order] > _LONG_BYTES].tolist():
+        found = _walk_one(data[index])
+        rows.append(np.full(len(found), index, dtype=np.int64))
+        cols.append(np.asarray(found, dtype=np.int64))
+    if not rows:
+        return np.empty(0, dtype=np.int64), np.empty(0, dtype=np.int64)
+    return np.concatenate(rows), np.concatenate(cols)
+
+
+def _walk_one(data: bytes) -> list[int]:
+    """py3langid's own walk, for long texts."""
+    model = _langid_model()
+    step, base, out = model.tk_nextmove, model._rowbase, model.tk_output
+    state = 0
+    found: list[int] = []
+    for byte in data:
+        state = step[base[state] + byte]
+        feature = out[state]
+        if feature >= 0:
+            found.append(feature)
+    return found
 
 
 # --------------------------------------------------------------------------- langdetect

@@ -48,10 +48,12 @@ locality-sensitive hashing (LSH) over character 4-gram shingles:
   ``1 - (1 - J^2)^16`` — 0.99 at ``J = 0.5`` (three edits in a 40-character
   answer) and 0.30 at ``J = 0.15``;
 * a candidate pair is dropped when the lengths alone rule it out
-  (``|len a - len b| > (1 - threshold)(len a + len b)``), the rest are checked
-  with the exact similarity above. Each key is paired with at most
-  :data:`MAX_CANDIDATES` earlier keys per band, which bounds the work at
-  100,000 answers even when many share a band.
+  (``|len a - len b| > (1 - threshold)(len a + len b)``). Each key is paired
+  with at most :data:`MAX_CANDIDATES` earlier keys per band, and of all its
+  candidates only the :data:`MAX_CHECKS` sharing the most bands (the most
+  similar, in expectation) are checked with the exact similarity above.
+  Both caps bound the work at 100,000 answers even when many answers share
+  half their text.
 
 ``tests/test_clean_duplicates.py`` checks the recall of this blocking against
 an exhaustive comparison (rapidfuzz ``process.cdist``).
@@ -62,6 +64,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 
 import numpy as np
+from rapidfuzz import process
 from rapidfuzz.distance import Indel
 
 from workbench.core.nonanswer import phrase_key
@@ -69,7 +72,8 @@ from workbench.core.nonanswer import phrase_key
 SHINGLE = 4
 PERMUTATIONS = 32
 BANDS = 16
-MAX_CANDIDATES = 16
+MAX_CANDIDATES = 8
+MAX_CHECKS = 16
 _BASE = 1_000_003
 _MASK32 = (1 << 32) - 1
 
@@ -108,8 +112,9 @@ def _signatures(keys: Sequence[str]) -> np.ndarray:
         valid = np.arange(len(hashes)) + SHINGLE <= ends[owner]
         hashes, owner = hashes[valid], owner[valid]
         first_window = np.searchsorted(owner, np.arange(len(part)))
-        values = (hashes[:, None] * a[None, :] + b[None, :]) >> np.uint64(32)
-        out[first : first + len(part)] = np.minimum.reduceat(values, first_window, axis=0)
+        # One row per hash function: reduceat runs along contiguous memory.
+        values = (a[:, None] * hashes[None, :] + b[:, None]) >> np.uint64(32)
+        out[first : first + len(part)] = np.minimum.reduceat(values, first_window, axis=1).T
     return out
 
 
@@ -163,16 +168,33 @@ def find_near_duplicates(
             a_idx, b_idx = order[later], order[earlier_pos]
             close = np.abs(lengths[a_idx] - lengths[b_idx]) <= slack * (lengths[a_idx] + lengths[b_idx])
             found.append(a_idx[close] * n + b_idx[close])
-    pairs = np.unique(np.concatenate(found)) if found else np.empty(0, dtype=np.int64)
+    if not found:
+        return {}
+    pairs, shared = np.unique(np.concatenate(found), return_counts=True)
+    later, earlier = np.divmod(pairs, n)
+    # Keep each key's MAX_CHECKS candidates that share the most bands: sharing
+    # more bands means a higher Jaccard similarity, so true near-copies come first.
+    order = np.lexsort((earlier, -shared, later))
+    later, earlier = later[order], earlier[order]
+    group_start = np.r_[0, np.flatnonzero(np.diff(later)) + 1]
+    rank = np.arange(len(later)) - np.repeat(group_start, np.diff(np.r_[group_start, len(later)]))
+    keep = rank < MAX_CHECKS
+    later, earlier = later[keep], earlier[keep]
+    # Exact similarity of every kept pair in one C++ call.
+    scores = process.cpdist(
+        [keys[i] for i in later.tolist()],
+        [keys[j] for j in earlier.tolist()],
+        scorer=Indel.normalized_similarity,
+        score_cutoff=threshold,
+    )
     labels = [set(g) for g in groups]
     links: dict[int, tuple[int, float]] = {}
-    for code in pairs.tolist():
-        index, earlier = divmod(code, n)
-        if index in links or not labels[index] & labels[earlier]:
-            continue
-        score = Indel.normalized_similarity(keys[index], keys[earlier], score_cutoff=threshold)
-        if score >= threshold:
-            links[index] = (earlier, score)
+    hits = np.flatnonzero(scores >= threshold)
+    # Link each key to the earliest key it matches.
+    for pos in hits[np.lexsort((earlier[hits], later[hits]))].tolist():
+        index, first = int(later[pos]), int(earlier[pos])
+        if index not in links and labels[index] & labels[first]:
+            links[index] = (first, float(scores[pos]))
     return links
 
 

@@ -74,12 +74,15 @@ def phrase_key(text: str) -> str:
 
 # ----------------------------------------------------------------- keyboard mash
 
-#: Letter rows of common keyboard layouts (QWERTY, QWERTZ, AZERTY, Russian
-#: ЙЦУКЕН, Greek). Two letters are neighbours when adjacent in one row.
+#: Letter rows of common keyboard layouts (QWERTY with national letters,
+#: QWERTZ, AZERTY, Russian ЙЦУКЕН, Greek). Two letters are neighbours when
+#: adjacent in one row.
 KEYBOARD_ROWS = (
     "qwertyuiop", "asdfghjkl", "zxcvbnm",
-    "qwertzuiop", "yxcvbnm",
-    "azertyuiop", "qsdfghjklm", "wxcvbn",
+    "qwertzuiopü", "asdfghjklöä", "yxcvbnm",  # German, Swedish, Finnish
+    "asdfghjkløæ", "qwertyuiopå",  # Danish, Norwegian
+    "asdfghjklñ",  # Spanish
+    "azertyuiop", "qsdfghjklmù", "wxcvbn",  # French
     "йцукенгшщзхъ", "фывапролджэ", "ячсмитьбю",
     "ςερτυθιοπ", "ασδφγηξκλ", "ζχψωβνμ",
 )  # fmt: skip

@@ -29,15 +29,18 @@ card
     Luhn check passes (python-stdnum ``luhn.is_valid``: doubling every second
     digit from the right, digit sums, total ≡ 0 mod 10).
 phone
-    Google's ``phonenumbers`` library (``PhoneNumberMatcher``) with leniency
-    ``VALID``: the digits must form a number that is valid for the region
-    according to the library's numbering-plan metadata. ``POSSIBLE`` (length
-    only) masks years, prices and order numbers; ``STRICT_GROUPING`` misses
-    numbers typed with casual spacing, which survey answers are full of.
-    Numbers in international form (``+49 …``) are found for any country;
-    national forms for the study's ``clean.phone_regions``, or — when that
+    Google's ``phonenumbers`` library (``PhoneNumberMatcher``). National
+    forms (``030 901820``, ``0049 30 …``) use leniency ``VALID``: the digits
+    must form a number that is valid for the region according to the
+    library's numbering-plan metadata — ``POSSIBLE`` (length only) would mask
+    years, prices and order numbers, and ``STRICT_GROUPING`` misses numbers
+    typed with casual spacing, which survey answers are full of. National
+    forms are tried for the study's ``clean.phone_regions`` or — when that
     list is empty — for the main regions of the expected languages
-    (:data:`LANGUAGE_REGIONS`, common practice).
+    (:data:`LANGUAGE_REGIONS`, common practice). Numbers written with a
+    leading ``+`` use ``POSSIBLE``: the plus and country code already say
+    "phone number", and a number in a range the metadata does not list yet
+    (or one reserved for fiction) is still someone's to protect.
 
 Overlaps are resolved by type priority (email > url > iban > card > phone),
 then by length: a card number is never also reported as a phone number.
@@ -207,10 +210,13 @@ def _find_phones(text: str, regions: Sequence[str]) -> Iterable[Span]:
         hi = min(len(text), run.end() + _PHONE_CONTEXT)
         piece = text[lo:hi]
         seen: set[tuple[int, int]] = set()
-        # Numbers written with a leading + parse without a region; 00-prefixed
-        # and national forms need one.
-        for region in (None,) if run.group().startswith("+") else (None, *regions):
-            for match in phonenumbers.PhoneNumberMatcher(piece, region, leniency=Leniency.VALID, max_tries=50):
+        # Numbers written with a leading + parse without a region and need only
+        # be possible (right length for the country code): the + says "phone".
+        # 00-prefixed and national forms need a region and must be valid.
+        international = run.group().startswith("+")
+        leniency = Leniency.POSSIBLE if international else Leniency.VALID
+        for region in (None,) if international else (None, *regions):
+            for match in phonenumbers.PhoneNumberMatcher(piece, region, leniency=leniency, max_tries=50):
                 key = (lo + match.start, lo + match.end)
                 if key not in seen:
                     seen.add(key)
