@@ -259,6 +259,11 @@ def weigh_corpus(
     enters = _entering(answers, study)
     selected = answers.loc[enters]
     left_out = int((~enters).sum())
+    if answers.empty:
+        raise InputError(
+            f"the sources hold no answers: every cell of the text column(s) {', '.join(study.columns.text) or '(none)'} "
+            "is empty; check columns.text against the data file's header"
+        )
     if selected.empty:
         und = int((answers[LANGUAGE] == UNDETERMINED).sum())
         raise InputError(
