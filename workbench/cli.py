@@ -7,6 +7,7 @@ Exit codes (also in the README):
     3   bad input data (answer files, glossaries, dictionaries)
     4   the output folder cannot be written
     5   ``verify`` found files that differ from the manifest
+    6   the Dask engine failed (no scheduler at the address, workers kept dying)
     130 cancelled (Ctrl-C)
 """
 

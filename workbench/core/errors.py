@@ -13,6 +13,7 @@ EXIT_INTERNAL = 1
 EXIT_SETTINGS = 2
 EXIT_INPUT = 3
 EXIT_OUTPUT = 4
+EXIT_ENGINE = 6
 EXIT_CANCELLED = 130
 
 
@@ -41,6 +42,12 @@ class OutputError(TermloomError):
     """The output folder cannot be written."""
 
     exit_code = EXIT_OUTPUT
+
+
+class EngineError(TermloomError):
+    """The distributed engine failed: no scheduler at the address, or its workers kept dying."""
+
+    exit_code = EXIT_ENGINE
 
 
 class Cancelled(TermloomError):

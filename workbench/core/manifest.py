@@ -4,7 +4,8 @@ The manifest is written last (atomically), so a folder whose manifest is
 present and verifies is a complete run. It holds the resolved settings,
 library versions, the spaCy lookup tables in use (package version and the
 SHA-256 of each lemma table file), the SHA-256 of every input file, the
-ledger's counts per status and per ``stage:code``, per-stage timings and
+ledger's counts per status and per ``stage:code``, the engine (in-process, or
+Dask with its cluster size and partitioning), per-stage timings and
 summaries, notes the export made (cut spreadsheet cells, split sheets...), and
 the size and SHA-256 of every file written, with paths relative to the folder.
 
@@ -298,6 +299,8 @@ def run_content(run: RunOutputs, notes: list[str], removed: list[str], export_se
         "decisions": _decision_counts(run),
         "ledger": {"counts": run.ledger.counts(), "reasons": dict(sorted(run.ledger.reasons().items()))},
         "stages": _stage_summaries(run),
+        # The engine, its cluster size and how the per-text work was partitioned.
+        "engine": to_jsonable(getattr(run, "engine", None) or {"kind": "local"}),
         "timings": timings,
         "notes": notes,
         "removed_from_previous_run": removed,

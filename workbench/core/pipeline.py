@@ -5,6 +5,10 @@ The CLI, the terminal UI and the tests call the same two functions:
 :func:`rerun_from` (re-use the stages before a given one, e.g. after the user
 overrides a language in the UI). :func:`run_to_folder` adds the export.
 
+The per-text work of clean, identify and terms runs through a mapper
+(``mapping.py``): in this process by default, on Dask workers when
+``workbench.core.distributed`` passes its own.
+
 Stage modules are imported lazily so ``termloom --help`` stays fast.
 """
 
@@ -22,6 +26,7 @@ from workbench.core.corpus import Corpus
 from workbench.core.decisions import Decisions, load_decisions
 from workbench.core.errors import SettingsError
 from workbench.core.ledger import Ledger
+from workbench.core.mapping import Mapper
 from workbench.core.progress import Reporter
 from workbench.core.settings import Study
 
@@ -42,6 +47,8 @@ class RunOutputs:
     compared: Any = None
     glossary: Any = None
     timings: dict[str, float] = field(default_factory=dict)
+    #: Where the run ran, for the manifest: ``{"kind": "local"}`` or the Dask engine's description.
+    engine: dict[str, Any] = field(default_factory=lambda: {"kind": "local"})
     started: datetime = field(default_factory=lambda: datetime.now(UTC))
     finished: datetime | None = None
     #: Answers table as it left each stage, and the ledger length before each
@@ -64,7 +71,7 @@ def _profiles_for(study: Study) -> dict[str, Any]:
     return load_profiles(list(study.languages.expected))
 
 
-def _run_stage(stage: str, out: RunOutputs, reporter: Reporter) -> None:
+def _run_stage(stage: str, out: RunOutputs, reporter: Reporter, mapper: Mapper | None = None) -> None:
     reporter.update(stage, 0, 0, f"{stage} started")
     begin = time.perf_counter()
     out.ledger_marks[stage] = out.ledger.mark()
@@ -78,16 +85,20 @@ def _run_stage(stage: str, out: RunOutputs, reporter: Reporter) -> None:
         from workbench.core.clean import clean_answers
 
         out.snapshots["clean"] = clean_answers(
-            out.snapshots["ingest"], study, _profiles_for(study), decisions, ledger, reporter
+            out.snapshots["ingest"], study, _profiles_for(study), decisions, ledger, reporter, mapper=mapper
         )
     elif stage == "identify":
         from workbench.core.identify import identify_answers
 
-        out.snapshots["identify"] = identify_answers(out.snapshots["clean"], study, decisions, ledger, reporter)
+        out.snapshots["identify"] = identify_answers(
+            out.snapshots["clean"], study, decisions, ledger, reporter, mapper=mapper
+        )
     elif stage == "terms":
         from workbench.core.terms import extract_terms
 
-        out.terms = extract_terms(out.snapshots["identify"], study, _profiles_for(study), decisions, ledger, reporter)
+        out.terms = extract_terms(
+            out.snapshots["identify"], study, _profiles_for(study), decisions, ledger, reporter, mapper=mapper
+        )
         out.snapshots["terms"] = out.terms.answers
     elif stage == "weigh":
         from workbench.core.weigh import weigh_corpus
@@ -119,10 +130,13 @@ def run_study(
     reporter: Reporter | None = None,
     decisions: Decisions | None = None,
     until: str = "compare",
+    *,
+    mapper: Mapper | None = None,
 ) -> RunOutputs:
     """Run the stages from ingest up to and including ``until``, in memory.
 
-    Decisions default to the active ones in the study's decision store.
+    Decisions default to the active ones in the study's decision store;
+    ``mapper`` runs the per-text work (default: in this process).
     """
     if until not in STAGES:
         raise SettingsError(f"unknown stage '{until}'; stages are {', '.join(STAGES)}")
@@ -131,7 +145,7 @@ def run_study(
         decisions = load_decisions(study.decisions_path if study.study_path else None)
     out = RunOutputs(study=study, decisions=decisions, ledger=Ledger())
     for stage in STAGES[: STAGES.index(until) + 1]:
-        _run_stage(stage, out, reporter)
+        _run_stage(stage, out, reporter, mapper)
     out.finished = datetime.now(UTC)
     return out
 
@@ -143,6 +157,8 @@ def rerun_from(
     decisions: Decisions | None = None,
     until: str = "compare",
     study: Study | None = None,
+    *,
+    mapper: Mapper | None = None,
 ) -> RunOutputs:
     """Re-run ``stage`` and the stages after it, re-using what ran before it.
 
@@ -168,7 +184,7 @@ def rerun_from(
         if STAGES.index(later) >= start:
             setattr(out, attribute, None)
     for current in STAGES[start : stop + 1]:
-        _run_stage(current, out, reporter)
+        _run_stage(current, out, reporter, mapper)
     out.finished = datetime.now(UTC)
     return out
 
