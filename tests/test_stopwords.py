@@ -15,6 +15,7 @@ def _study(**terms: object):
     return study_from_dict({"sources": [{"path": "x.csv"}], "terms": terms})
 
 
+@pytest.mark.slow
 def test_every_stop_word_survives_the_token_normalisation(lang: str) -> None:
     """Each stop word, run through the same normalisation as a token (lemma, overrides, lower case,
     NFC), lands in the effective stop set — unless the profile removed it, or removed the word its
@@ -34,6 +35,7 @@ def test_every_stop_word_survives_the_token_normalisation(lang: str) -> None:
     assert not leaking, f"{lang}: stop words that still give a term as a whole answer: {leaking[:10]}"
 
 
+@pytest.mark.slow
 def test_removed_words_stay_terms(lang: str) -> None:
     """Words of stop_remove.txt are terms after normalisation (negations, intensifiers...)."""
     profile = load_profile(lang)
