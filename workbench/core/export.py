@@ -158,9 +158,9 @@ def _cut_bytes(text: str, limit: int) -> str:
 def prepare_folder(out_dir: Path) -> Path:
     """Create ``out_dir`` if needed and prove it is writable; one-line :class:`OutputError` otherwise."""
     out_dir = Path(out_dir)
-    if out_dir.exists() and not out_dir.is_dir():
-        raise OutputError(f"output folder {out_dir} is a file; give the path of a folder (it is created if missing)")
-    try:
+    try:  # exists() itself raises on a name too long for the file system
+        if out_dir.exists() and not out_dir.is_dir():
+            raise OutputError(f"output folder {out_dir} is a file; give the path of a folder (it is created if missing)")
         out_dir.mkdir(parents=True, exist_ok=True)
         probe = out_dir / f"{TEMP_PREFIX}probe"
         probe.write_bytes(b"")
