@@ -94,10 +94,22 @@ _CONSEQUENCE = {
 }
 
 
+#: Longest glossary cell read (characters). A cell holds one term; a longer one is a broken
+#: file (a quote that never closes swallows the lines after it).
+MAX_CELL_CHARS = 10_000
+
+
 def _records(reader: Any, path: Path) -> Iterator[list[str]]:
-    """The CSV records; a cell over the csv module's field limit (128 KiB) is a one-line error, not a crash."""
+    """The CSV records; an over-long cell is a one-line error naming the line, not a crash."""
     try:
-        yield from reader
+        for record in reader:
+            longest = max(map(len, record), default=0)
+            if longest > MAX_CELL_CHARS:
+                raise InputError(
+                    f"glossary {path}: line {reader.line_num} has a cell of {longest:,} characters "
+                    f"(limit {MAX_CELL_CHARS:,}); a cell holds one term — fix that line"
+                )
+            yield record
     except csv.Error as exc:
         raise InputError(
             f"glossary {path}: line {reader.line_num} cannot be read as CSV ({exc}); a cell holds one term — fix that line"
@@ -135,6 +147,8 @@ def read_glossary(path: Path | str, languages: list[str]) -> Glossary:
         raise InputError(f"glossary {path} is empty; it needs a header concept,language,term and one row per term")
     first_line = text.split("\n", 1)[0]
     delimiter = max((",", ";", "\t"), key=first_line.count)
+    # the same limit the data reader sets (the csv module's is process-wide), so MAX_CELL_CHARS decides
+    csv.field_size_limit(max(csv.field_size_limit(), 2**31 - 1))
     reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
     records = _records(reader, path)
     header = [h.strip().lower() for h in next(records)]
