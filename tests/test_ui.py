@@ -23,31 +23,47 @@ from workbench.ui.screens.choice_screen import ChoiceScreen
 from workbench.ui.screens.help_screen import HelpScreen
 from workbench.ui.widgets.frame_grid import FrameGrid
 
-EN = [
-    "basically the delivery was fast and the price was fair",
-    "the staff were friendly but basically the app keeps crashing",
-    "basically cheap tickets and clean trains",
-    "the price of the monthly pass is too high",
-    "delivery of the card took three weeks basically",
-    "friendly staff and a clean station",
-    "the app is slow and the price keeps rising",
-    "basically good value for the price",
-]
-DE = [
-    "die Lieferung war schnell und der Preis fair",
-    "das Personal war freundlich aber die App stürzt ständig ab",
-    "günstige Tickets und saubere Züge",
-    "der Preis für die Monatskarte ist zu hoch",
-    "die Karte kam erst nach drei Wochen an",
-    "freundliches Personal und ein sauberer Bahnhof",
-]
-FR = [
-    "la livraison était rapide et le prix correct",
-    "le personnel était aimable mais l'application plante sans cesse",
-    "des billets bon marché et des trains propres",
-    "le prix de l'abonnement mensuel est trop élevé",
-]
-#: Answers a detector gets wrong or cannot tell: short, or in another language than the hint says.
+# Pilot tests are coroutines; anyio's pytest plugin runs them on asyncio.
+pytestmark = pytest.mark.anyio
+
+#: Answers are two clauses joined, so every answer is different (no duplicate flags).
+CLAUSES = {
+    "en": (
+        [
+            "basically the delivery was fast",
+            "the staff were friendly",
+            "basically cheap tickets",
+            "the price of the monthly pass is too high",
+            "the card took three weeks basically",
+            "a clean station",
+            "the app is slow",
+            "basically good value for the price",
+        ],
+        ["the trains are clean", "the price keeps rising", "the app keeps crashing", "basically fine", "support never answers"],
+    ),
+    "de": (
+        [
+            "die Lieferung war schnell",
+            "das Personal war freundlich",
+            "günstige Tickets",
+            "der Preis für die Monatskarte ist zu hoch",
+            "die Karte kam erst nach drei Wochen",
+            "ein sauberer Bahnhof",
+        ],
+        ["die Züge sind sauber", "der Preis steigt ständig", "die App stürzt ständig ab", "niemand antwortet"],
+    ),
+    "fr": (
+        [
+            "la livraison était rapide",
+            "le personnel était aimable",
+            "des billets bon marché",
+            "le prix de l'abonnement mensuel est trop élevé",
+        ],
+        ["les trains sont propres", "le prix augmente sans cesse", "l'application plante sans cesse"],
+    ),
+}
+JOIN = {"en": "and", "de": "und", "fr": "et"}
+#: Answers a detector gets wrong or cannot tell: short, junk, or not in the language the hint says.
 TRICKY = ["ok", "Super!", "n/a", "asdfghjkl", "Prix trop élevé"]
 
 STUDY = """\
@@ -78,15 +94,15 @@ bootstrap = 10
 
 
 def write_study(folder: Path) -> Path:
-    """About 100 answers: each sentence repeated with a respondent number, two countries."""
+    """About 100 different answers in three languages from two countries, plus a few tricky ones."""
     rows = []
     number = 0
-    for repeat in range(5):
-        for lang, texts in (("en", EN), ("de", DE), ("fr", FR)):
-            for text in texts:
+    for lang, (first, second) in CLAUSES.items():
+        for a in first:
+            for b in second:
                 number += 1
                 country = "Norland" if number % 2 else "Sudmark"
-                rows.append([f"r{number:03d}", country, lang, f"{text} {'!' * (repeat % 2)}".strip()])
+                rows.append([f"r{number:03d}", country, lang, f"{a} {JOIN[lang]} {b}"])
     for text in TRICKY:
         number += 1
         rows.append([f"r{number:03d}", "Norland", "en", text])
@@ -144,7 +160,7 @@ async def test_open_study_shows_every_answer(study: Path) -> None:
         outputs = app.session.outputs
         assert outputs is not None and outputs.compared is not None
         grid = _grid(app, "answers-grid")
-        assert grid.row_count == len(outputs.answers) == 5 * 18 + len(TRICKY)
+        assert grid.row_count == len(outputs.answers) == 8 * 5 + 6 * 4 + 4 * 3 + len(TRICKY)
         assert app.focused is grid
 
 
@@ -182,7 +198,9 @@ async def test_suspect_filter_and_search(study: Path) -> None:
         confidences = [float(c) for c in grid.frame["confidence"].to_numpy()[grid._positions]]  # noqa: SLF001
         assert confidences == sorted(confidences)
         await pilot.press("m", "slash", *"preis")
-        assert set(_shown(grid, "raw_text")) == {t for t in DE if "preis" in t.lower()}
+        shown = _shown(grid, "raw_text")
+        assert shown and all("preis" in text.lower() for text in shown)
+        assert len(shown) == sum("preis" in text.lower() for text in grid.frame["raw_text"])
         await pilot.press("escape", "c")
         assert grid.row_count == total
 
@@ -232,8 +250,9 @@ async def test_stop_word_changes_keywords_and_undo_restores(study: Path) -> None
     app = TermloomApp(study, debounce=0)
     async with app.run_test(size=(120, 40)) as pilot:
         await _open(app, pilot)
-        await pilot.press("4")
+        await pilot.press("4", "right_square_bracket")  # de -> en
         kw = _grid(app, "kw-grid")
+        assert app.workbench.view("keywords").scope == "unit:en"
         assert "basically" in _shown(kw, "term")
         await pilot.press("3")
         terms = _grid(app, "terms-grid")

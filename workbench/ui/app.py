@@ -7,6 +7,7 @@ earliest stage it touches, through :class:`~workbench.ui.session.Session`.
 
 from __future__ import annotations
 
+import asyncio
 import dataclasses
 import threading
 import time
@@ -20,10 +21,11 @@ from textual.app import App
 from textual.binding import Binding, BindingType
 from textual.message import Message
 from textual.timer import Timer
+from textual.worker import WorkerCancelled, WorkerFailed
 
 from workbench.core.decisions import Decisions, Kind
 from workbench.core.errors import Cancelled, TermloomError
-from workbench.core.pipeline import RunOutputs
+from workbench.core.pipeline import STAGES, RunOutputs
 from workbench.core.progress import Reporter
 from workbench.core.settings import Study
 from workbench.ui.commands import ActionCommands
@@ -72,12 +74,17 @@ class TermloomApp(App[int]):
         self._reporter: Reporter | None = None
         self._timer: Timer | None = None
         self._last_progress = 0.0
+        #: Set while no computation or export is running (see wait_until_idle).
+        self._idle = asyncio.Event()
+        self._idle.set()
+        #: The stage the worker last reported, to name it in an error message.
+        self._stage_running: str | None = None
 
     # ------------------------------------------------------------------ start
 
-    def on_mount(self) -> None:
+    async def on_mount(self) -> None:
         self._workbench = WorkbenchScreen()
-        self.push_screen(self._workbench)
+        await self.push_screen(self._workbench)
         if self.study_path is not None:
             self.open_study(self.study_path)
 
@@ -189,6 +196,8 @@ class TermloomApp(App[int]):
         if stage is None:
             return
         self._reporter = Reporter(callback=self._progress_from_thread, cancel=threading.Event())
+        self._idle.clear()
+        self._stage_running = None
         self.workbench.status.start(stage)
         self.refresh_bindings()
         self._compute(session, stage, session.active(), session.study, self._reporter)
@@ -196,19 +205,35 @@ class TermloomApp(App[int]):
     @work(thread=True, group="pipeline", exit_on_error=False)
     def _compute(self, session: Session, stage: str, decisions: Decisions, study: Study, reporter: Reporter) -> None:
         try:
-            outputs = session.compute(stage, decisions, reporter, study)
+            if STAGES.index(stage) <= STAGES.index("identify"):
+                # Show the answers as soon as languages are known: the terms stage can
+                # take a while on first use (lemma tables), and the answers are what
+                # the analyst reviews first.
+                early = session.compute(stage, decisions, reporter, study, until="identify")
+                self.call_from_thread(self._publish, session, early)
+                outputs = session.compute("terms", decisions, reporter, study, previous=early)
+            else:
+                outputs = session.compute(stage, decisions, reporter, study)
         except Cancelled:
             self.call_from_thread(self._compute_ended, session, stage, None, None)
         except TermloomError as exc:
             self.call_from_thread(self._compute_ended, session, stage, None, str(exc))
         except Exception as exc:  # a bug: say so in one line, keep the traceback in the log
             self.log.error(traceback.format_exc())
-            message = f"internal error in {stage} ({type(exc).__name__}: {exc}); please report it with the study file"
+            where = self._stage_running or stage
+            message = f"internal error in {where} ({type(exc).__name__}: {exc}); please report it with the study file"
             self.call_from_thread(self._compute_ended, session, stage, None, message)
         else:
             self.call_from_thread(self._compute_ended, session, stage, outputs, None)
 
+    def _publish(self, session: Session, outputs: RunOutputs) -> None:
+        """Results of the first stages, shown while the later ones run."""
+        if session is self.session:
+            session.outputs = outputs
+            self.workbench.outputs_changed(session, final=False)
+
     def _progress_from_thread(self, stage: str, done: int, total: int, message: str) -> None:
+        self._stage_running = stage
         now = time.perf_counter()
         if now - self._last_progress >= 0.1 or (total and done >= total):
             self._last_progress = now
@@ -219,6 +244,7 @@ class TermloomApp(App[int]):
 
     def _compute_ended(self, session: Session, stage: str, outputs: RunOutputs | None, error: str | None) -> None:
         self._reporter = None
+        self._idle.set()
         self.refresh_bindings()
         if session is not self.session:
             return
@@ -256,6 +282,7 @@ class TermloomApp(App[int]):
         )
         outputs = dataclasses.replace(session.outputs, study=study)
         self._reporter = Reporter(callback=self._progress_from_thread, cancel=threading.Event())
+        self._idle.clear()
         self.workbench.status.start("export", "writing")
         self.refresh_bindings()
         self._export(outputs, folder, self._reporter, done)
@@ -280,6 +307,7 @@ class TermloomApp(App[int]):
 
     def _export_ended(self, folder: Path, written: list[Path] | None, error: str | None, done: Callable[..., None]) -> None:
         self._reporter = None
+        self._idle.set()
         self.refresh_bindings()
         if error:
             self.notify(error, title="Export stopped", severity="error", timeout=15)
@@ -302,7 +330,7 @@ class TermloomApp(App[int]):
         return True
 
     async def wait_until_idle(self) -> None:
-        """Wait until no computation is running or scheduled (tests and benchmarks).
+        """Wait until no computation or export runs or is scheduled, nor any other worker (tests, benchmarks).
 
         A pending debounce timer is fired at once rather than waited for.
         """
@@ -311,9 +339,14 @@ class TermloomApp(App[int]):
                 self._timer.stop()
                 self._timer = None
                 self.start_compute()
-            # The worker hands its result over with call_from_thread, which returns
-            # only after the main loop ran it, so a finished worker means handled outputs.
-            await self.workers.wait_for_complete()
+            # Set by the main loop once a worker has handed over its result.
+            await self._idle.wait()
+            for worker in list(self.workers):
+                if worker.is_running:
+                    try:
+                        await worker.wait()
+                    except (WorkerCancelled, WorkerFailed):
+                        continue  # the worker reported its own failure
             if self._reporter is None and self._timer is None:
                 return
 

@@ -11,12 +11,23 @@ compare.reference=B`` would do.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import pandas as pd
 
-from workbench.core.compare import POOLED, CompareResult
-from workbench.core.groups import table_name
+from workbench.core.counting import POOLED
 from workbench.core.pipeline import RunOutputs
 from workbench.core.settings import Study
+
+if TYPE_CHECKING:
+    from workbench.core.compare import CompareResult
+
+
+def table_name(*parts: object) -> str:
+    """The compare stage's name for a table (imported on first use: the compare module loads SciPy's statistics)."""
+    from workbench.core.groups import table_name as name
+
+    return name(*parts)
 
 TOP_COLUMNS = ["rank", "term", "score", "share", "mentions", "stability"]
 KEYNESS_COLUMNS = ["term", "freq_group", "freq_ref", "share_group", "share_ref", "g2", "log_ratio", "p_adj", "direction"]
@@ -228,9 +239,9 @@ def two_groups(
         return empty, f"{grouping} = '{a}' against {against} in {unit}: not tested ({_size_status(tables, grouping, a, unit)})"
     where = "all languages" if unit == POOLED else unit
     legend = (
-        f"{grouping} = '{a}' (A) against {against} (B) in {where}: {_size_status(tables, grouping, a, unit)} · "
-        "A/B = respondents mentioning · G² (Dunning 1993) · Log Ratio = log2 of the ratio of relative "
-        "frequencies (Hardie 2014) · adj. p = Benjamini–Hochberg · bar: green more in A, red more in B"
+        f"A = {grouping} '{a}', B = {against}, in {where} ({_size_status(tables, grouping, a, unit)}) · "
+        "A, B: respondents mentioning · G² log-likelihood · LogR: log2 ratio of relative frequencies · "
+        "adj.p: Benjamini–Hochberg · bar green: more in A, red: more in B"
     )
     return table[KEYNESS_COLUMNS].reset_index(drop=True), legend
 

@@ -91,16 +91,25 @@ class Session:
             stage = "ingest"
         return stage
 
-    def compute(self, stage: str, decisions: Decisions, reporter: Reporter, study: Study | None = None) -> RunOutputs:
-        """Run the pipeline from ``stage`` with ``decisions``; safe to call from a worker thread.
+    def compute(
+        self,
+        stage: str,
+        decisions: Decisions,
+        reporter: Reporter,
+        study: Study | None = None,
+        until: str = "compare",
+        previous: RunOutputs | None = None,
+    ) -> RunOutputs:
+        """Run the pipeline from ``stage`` to ``until`` with ``decisions``; safe to call from a worker thread.
 
-        Reads nothing mutable from the session except the previous outputs, which
+        Starts from ``previous`` (default: the session's outputs), which
         :func:`rerun_from` leaves untouched; the caller assigns the result.
         """
         study = study or self.study
-        if stage == "ingest" or self.outputs is None:
-            return run_study(study, reporter, decisions=decisions)
-        return rerun_from(self.outputs, stage, reporter, decisions=decisions, study=study)
+        previous = previous if previous is not None else self.outputs
+        if stage == "ingest" or previous is None:
+            return run_study(study, reporter, decisions=decisions, until=until)
+        return rerun_from(previous, stage, reporter, decisions=decisions, until=until, study=study)
 
     def reload_study(self) -> None:
         """Read the study file again (after the Sources view saved column roles)."""

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from textual.app import ComposeResult
+from textual.containers import Horizontal
 from textual.screen import Screen
 from textual.widgets import Footer, Header, TabbedContent, TabPane
 
@@ -30,11 +31,12 @@ VIEW_CLASSES: dict[str, type[ViewBase]] = {
 class WorkbenchScreen(Screen[None]):
     def compose(self) -> ComposeResult:
         yield Header()
-        with TabbedContent(id="views", initial="tab-answers"):
-            for number, (view_id, cls) in enumerate(VIEW_CLASSES.items(), start=1):
-                with TabPane(f"{number} {cls.TITLE}", id=f"tab-{view_id}"):
-                    yield cls(id=f"view-{view_id}")
-        yield DecisionsPanel(id="decisions")
+        with Horizontal(id="body"):
+            with TabbedContent(id="views", initial="tab-answers"):
+                for number, (view_id, cls) in enumerate(VIEW_CLASSES.items(), start=1):
+                    with TabPane(f"{number} {cls.TITLE}", id=f"tab-{view_id}"):
+                        yield cls(id=f"view-{view_id}")
+            yield DecisionsPanel(id="decisions")
         yield RunStatus(id="status")
         yield Footer()
 
@@ -73,10 +75,11 @@ class WorkbenchScreen(Screen[None]):
         for view in self.views():
             view.study_opened(session)
 
-    def outputs_changed(self, session: Session) -> None:
+    def outputs_changed(self, session: Session, final: bool = True) -> None:
         for view in self.views():
             view.outputs_changed(session)
-        self.status.finish(summary(session))
+        if final:
+            self.status.finish(summary(session))
 
     def decisions_changed(self) -> None:
         session = self.app.session  # type: ignore[attr-defined]

@@ -74,12 +74,12 @@ COLUMNS = [
     GridColumn(C.LANGUAGE, "lang", 4, format=_language),
     GridColumn(C.CONFIDENCE, "conf", 4, "right", _confidence),
     GridColumn(C.LANGUAGE_SOURCE, "by", 4, format=_source),
-    GridColumn(C.FLAGS, "flags", 11, format=_flags),
+    GridColumn(C.FLAGS, "flags", 14, format=_flags),
     GridColumn(C.RESPONDENT_ID, "respondent", 10),
     GridColumn(C.CLEAN_TEXT, "answer", format=_text),
 ]
 
-BLANK = Select.BLANK
+BLANK = Select.NULL
 
 
 class AnswersView(ViewBase):

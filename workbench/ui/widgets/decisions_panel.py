@@ -40,7 +40,7 @@ class DecisionsPanel(Vertical):
     """Lists decisions; undo and redo are app keys so they work from every view."""
 
     DEFAULT_CSS = """
-    DecisionsPanel { width: 46; dock: right; border-left: vkey $primary; display: none; }
+    DecisionsPanel { width: 44; max-width: 50%; border-left: vkey $primary; display: none; }
     DecisionsPanel.-shown { display: block; }
     DecisionsPanel > #decisions-title { height: 1; text-style: bold; padding: 0 1; }
     """

@@ -297,5 +297,6 @@ class FrameGrid(ScrollView, can_focus=True):
         return self._strip(line, width, base)
 
     def _strip(self, line: Text, width: int, style: Style) -> Strip:
-        segments = list(line.render(self.app.console, end=""))
+        # Rich leaves plain runs unstyled (style None); Textual's NO_COLOR filter needs a style on every segment.
+        segments = [Segment(text, seg_style or style) for text, seg_style, _ in line.render(self.app.console, end="")]
         return Strip(segments).adjust_cell_length(width, style)

@@ -20,7 +20,7 @@ from textual.containers import Horizontal, Vertical
 from textual.widget import Widget
 from textual.widgets import Select, Static
 
-from workbench.core.compare import POOLED, compare_corpus
+from workbench.core.counting import POOLED
 from workbench.core.errors import TermloomError
 from workbench.core.pipeline import RunOutputs
 from workbench.core.progress import Reporter
@@ -201,7 +201,7 @@ class KeywordsView(ViewBase):
     def _set(self, select_id: str, options: list[tuple[str, str]], value: str | None) -> None:
         select = self.query_one(select_id, Select)
         select.set_options(options)
-        select.value = value if value in [v for _, v in options] else Select.BLANK
+        select.value = value if value in [v for _, v in options] else Select.NULL
 
     def _show_controls(self) -> None:
         top, compare = self.mode == MODE_TOP, self.mode == MODE_COMPARE
@@ -265,6 +265,8 @@ class KeywordsView(ViewBase):
     @work(thread=True, exclusive=True, group="pair", exit_on_error=False)
     def _compute_pair(self, outputs: RunOutputs, grouping: str, reference: str) -> None:
         """Run the compare stage with ``reference`` as the reference group (one grouping, no bootstrap)."""
+        from workbench.core.compare import compare_corpus
+
         study = K.pair_study(outputs.study, grouping, reference)
         error = None
         tables: dict[str, pd.DataFrame] = {}
@@ -291,7 +293,7 @@ class KeywordsView(ViewBase):
 
     @on(Select.Changed)
     def _changed(self, event: Select.Changed) -> None:
-        value = None if event.value is Select.BLANK else str(event.value)
+        value = None if event.value is Select.NULL else str(event.value)
         select_id = event.select.id
         if select_id == "kw-mode":
             self.mode = value or MODE_TOP
@@ -320,9 +322,9 @@ class KeywordsView(ViewBase):
 
     def _cycle(self, select_id: str, step: int, blank: bool = False) -> None:
         select = self.query_one(select_id, Select)
-        options: list[Any] = [value for _, value in select._options if value is not Select.BLANK]  # noqa: SLF001
+        options: list[Any] = [value for _, value in select._options if value is not Select.NULL]  # noqa: SLF001
         if blank:
-            options = [Select.BLANK, *options]
+            options = [Select.NULL, *options]
         if not options:
             return
         current = select.value if select.value in options else options[0]

@@ -19,7 +19,6 @@ from textual.widgets import Static
 
 from workbench.core.errors import TermloomError
 from workbench.core.pipeline import RunOutputs
-from workbench.ui.kwic_lines import kwic_for
 from workbench.ui.widgets.frame_grid import FrameGrid, GridColumn
 
 
@@ -73,6 +72,8 @@ class KwicPanel(Vertical):
 
     @work(thread=True, exclusive=True, group="kwic", exit_on_error=False)
     def _lookup(self, label: str, outputs: RunOutputs, targets: list[tuple[str | None, str]]) -> None:
+        from workbench.ui.kwic_lines import kwic_for  # loads spaCy; only when first asked
+
         try:
             lines: pd.DataFrame | None = kwic_for(outputs.answers, outputs.study, outputs.decisions, targets)
             error = None

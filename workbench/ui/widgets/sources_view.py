@@ -47,6 +47,12 @@ def roles_of(columns: Columns) -> dict[str, str]:
     return roles
 
 
+def _width(values: pd.Series, name: str, widest: int = 16) -> int:
+    """Room for the column's name and its longest value among the rows shown, at most ``widest``."""
+    longest = int(values.astype(str).str.len().max()) if len(values) else 0
+    return max(2, min(widest, max(len(name), longest)))
+
+
 def _role_cell(value: object) -> Text:
     role = str(value or "")
     return Text(role or "·", style=ROLE_STYLE.get(role, "dim"))
@@ -79,7 +85,7 @@ class SourcesView(ViewBase):
         yield Static("no study open", id="sources-report")
         with Horizontal(id="sources-body"):
             with Vertical(id="roles-box"):
-                yield Static("Column roles  (i t g w h · ^s save)", id="roles-title", classes="box-title")
+                yield Static("Column roles", id="roles-title", classes="box-title")
                 yield FrameGrid(
                     [GridColumn("column", "column"), GridColumn("role", "role", 7, format=_role_cell)],
                     key_column="column",
@@ -119,11 +125,12 @@ class SourcesView(ViewBase):
 
     def _peeked(self, session: Session, peeks: list[tuple[pd.DataFrame | None, str]]) -> None:
         self.peeks = peeks
-        seen = [c for c in self.order]
+        seen: list[str] = []
         for frame, _ in peeks:
             if frame is not None:
                 seen += [str(c) for c in frame.columns if str(c) not in seen]
-        self.order = seen
+        # File order first; roles naming a column the files lack stay listed (ingest will say so).
+        self.order = seen + [c for c in self.order if c not in seen]
         self._show_roles()
         self._show_preview()
         if session.outputs is None:
@@ -141,7 +148,7 @@ class SourcesView(ViewBase):
         preview.key_column = "#"
         columns = [str(c) for c in frame.columns][:14]
         preview.columns = [
-            GridColumn(c, c, None if self.roles.get(c) == "text" else min(16, max(3, len(c)))) for c in columns
+            GridColumn(c, c, None if self.roles.get(c) == "text" else _width(frame[c], c)) for c in columns
         ]
         if not any(self.roles.get(c) == "text" for c in columns) and len(preview.columns) > 1:
             last = preview.columns[-1]
@@ -195,7 +202,7 @@ class SourcesView(ViewBase):
         frame = pd.DataFrame({"column": self.order, "role": [self.roles.get(c, "") for c in self.order]})
         self.query_one("#roles-grid", FrameGrid).set_frame(frame)
         changed = self.roles != self.saved_roles
-        title = "Column roles  (i t g w h · ^s save)" + ("  • unsaved" if changed else "")
+        title = "Column roles" + ("  • unsaved: ^s saves" if changed else "")
         self.query_one("#roles-title", Static).update(title)
 
     def action_role(self, role: str) -> None:

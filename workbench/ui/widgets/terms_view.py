@@ -175,7 +175,7 @@ class TermsView(ViewBase):
 
     @on(Select.Changed, "#terms-language")
     def _language_chosen(self, event: Select.Changed) -> None:
-        if event.value is not Select.BLANK:
+        if event.value is not Select.NULL:
             self.language = str(event.value)
             self.marked = None
             self._show(keep=False)
