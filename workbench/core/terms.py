@@ -38,11 +38,9 @@ from __future__ import annotations
 import functools
 import re
 import time
-import unicodedata
 from collections import Counter
 from collections.abc import Sequence
 from dataclasses import dataclass, field
-from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -62,7 +60,7 @@ from workbench.core.lemmas import (
 )
 from workbench.core.ledger import Ledger
 from workbench.core.mapping import LocalMapper, Mapper, fingerprint
-from workbench.core.phrases import CONTENT, EDGE, MIDDLE, UNIGRAM, ExpressionMatcher, Unit, assemble
+from workbench.core.phrases import CONTENT, MIDDLE, UNIGRAM, ExpressionMatcher, Unit, assemble
 from workbench.core.pii import PLACEHOLDER_RE
 from workbench.core.profiles import LanguageProfile, load_profile
 from workbench.core.progress import Reporter
