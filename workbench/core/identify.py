@@ -55,18 +55,23 @@ The default detector
 --------------------
 py3langid, chosen by measurement: ``tests/bench/bench_identify.py`` on the
 5,943 chatterbot-corpus utterances of en, de, es, fr, it, nl, pt, ru, sv,
-tr (no hint; accuracy / wrong label, 4+ words and 1–3 words)::
+tr (no hint; accuracy / wrong label on 4+ words, then on 1–3 words; wall
+time of one run over the corpus, models loaded, on a shared machine)::
 
-    py3langid   bar 0.6   97.9 % / 0.3 %    54.1 % / 1.3 %    ~20,000 texts/s
-    langdetect  bar 0.8   92.0 % / 3.9 %    54.0 % / 14.6 %   ~150 texts/s
-    lingua      bar 0.3   94.6 % / 1.7 %    60.0 % / 6.7 %    (optional)
-    ensemble    bar 0.6   92.5 % / 0.2 %    45.8 % / 0.9 %    langdetect's speed
+    py3langid   bar 0.6   97.9 % / 0.3 %    54.1 % / 1.3 %     22 s
+    langdetect  bar 0.6   93.2 % / 4.9 %    56.1 % / 17.6 %   122 s
+    lingua      bar 0.6   78.4 % / 0.2 %    38.9 % / 0.8 %     48 s (optional)
+    lingua      bar 0.3   94.6 % / 1.7 %    60.0 % / 6.7 %     (its scores run lower)
+    ensemble    bar 0.6   92.5 % / 0.2 %    45.8 % / 0.9 %     94 s
 
-py3langid is the most accurate and by far the fastest; its wrong-label rate
-on short answers is already far under the 8 % target, so the ensemble's
-small cut in wrong labels costs 5 points of accuracy for little gain. The
-default bar (``identify.min_confidence`` = 0.6, ``min_letters`` = 8) comes
-from the same benchmark's sweep.
+py3langid is the most accurate on 4+ words and by far the fastest; its
+wrong-label rate on short answers is already far under the 8 % target, so
+the ensemble (py3langid and langdetect must agree) trades 5 points of
+accuracy for 0.1–0.4 points fewer wrong labels, and lingua's models (~1 GB,
+seconds to load) buy nothing here. The default bar (``identify.min_confidence``
+= 0.6 with ``min_letters`` = 8) comes from the same benchmark's sweep: 0.8
+gives 95.5 % on 4+ words (under the 97 % target), 0.5 gives 98.3 % with
+1.7 % wrong on short answers.
 
 Deterministic: detection is a pure function of the text (langdetect is
 seeded), distinct texts are processed in first-appearance order, and ties

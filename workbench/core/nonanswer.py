@@ -96,6 +96,8 @@ for _row in KEYBOARD_ROWS:
 #: it carries the vowel in many words of the Latin-script languages.
 _VOWELS = frozenset("aeiouyæøœåı" "аеёиоуыэюяіїє" "αεηιουω")
 _WORD_RE = re.compile(r"[^\W\d_]+")
+#: Letters of the Latin (incl. Extended Additional), Greek and Cyrillic blocks.
+_VOWEL_SCRIPTS = re.compile("^[a-z\u00c0-\u024f\u1e00-\u1eff\u0370-\u03ff\u1f00-\u1fff\u0400-\u04ff]+$")
 
 #: Thresholds, tuned on the word lists of spacy-lookups-data (see tests):
 #: a keyboard walk of this many keys in one direction ("asdfg", "lkjhg")...
@@ -159,6 +161,8 @@ def _token_is_mash(token: str) -> bool:
         previous = ch
     if whole_walk:
         return True
+    if not _VOWEL_SCRIPTS.match(token):
+        return False  # vowels are only known for Latin, Greek and Cyrillic letters
     if longest_consonants >= MASH_CONSONANT_RUN:
         return True
     return run_vowel == 0 and n >= MASH_NO_VOWEL
@@ -179,7 +183,9 @@ def is_keyboard_mash(text: str) -> bool:
     * it has at least :data:`MASH_TWO_LETTERS` letters from at most two
       distinct letters (``jfjfjf``, ``hahaha``);
     * it has a run of :data:`MASH_CONSONANT_RUN` consonants, or is at least
-      :data:`MASH_NO_VOWEL` letters long with no vowel at all (``sdfjkl``).
+      :data:`MASH_NO_VOWEL` letters long with no vowel at all (``sdfjkl``) —
+      for Latin, Greek and Cyrillic letters only, whose vowels are known
+      (Arabic or Hebrew script writes few vowels and would all look mashed).
 
     The answer is mash when mash-like tokens hold at least
     :data:`MASH_SHARE` of its letters. A character-bigram language model
