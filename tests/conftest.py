@@ -6,8 +6,16 @@ import os
 from collections.abc import Iterator
 
 import pytest
+from hypothesis import settings
 
 from workbench.core.profiles import available_languages
+
+# Property-test budgets (tests/test_properties.py): "ci" by default, a few tens of seconds;
+# HYPOTHESIS_PROFILE=thorough runs at least 10,000 examples on demand. Tests that set their own
+# max_examples keep it. No deadline: a first example pays for building lemma tables.
+settings.register_profile("ci", max_examples=60, deadline=None, print_blob=True)
+settings.register_profile("thorough", max_examples=10_000, deadline=None, print_blob=True)
+settings.load_profile(os.environ.get("HYPOTHESIS_PROFILE", "ci"))
 
 
 @pytest.fixture(scope="session", autouse=True)
