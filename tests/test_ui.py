@@ -121,10 +121,15 @@ def study_template(tmp_path_factory: pytest.TempPathFactory) -> Path:
 
 
 @pytest.fixture
-def study(study_template: Path, tmp_path: Path) -> Path:
-    """A fresh copy per test, so decision stores never leak between tests."""
+def study(study_template: Path, tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> Path:
+    """A fresh copy per test, so decision stores never leak between tests.
+
+    The test runs inside ``tmp_path``: the default export folder is relative to
+    the current folder, as for ``termloom run``.
+    """
     for name in ("answers.csv", study_template.name):
         shutil.copy(study_template.parent / name, tmp_path / name)
+    monkeypatch.chdir(tmp_path)
     return tmp_path / study_template.name
 
 
@@ -364,11 +369,13 @@ async def test_palette_runs_a_view_action(study: Path) -> None:
     async with app.run_test(size=(120, 40)) as pilot:
         await _open(app, pilot)
         await pilot.press("ctrl+p")
-        await pilot.press(*"Export: Write the output folder")
+        await pilot.press(*"Keywords: Compare two groups")
         await pilot.pause()
         await pilot.press("enter")
+        await app.wait_until_idle()
         await pilot.pause()
-        assert app.workbench.query_one("#views").active == "tab-export"
+        assert app.workbench.query_one("#views").active == "tab-keywords"
+        assert app.workbench.view("keywords").mode == "two groups"
 
 
 async def test_missing_source_is_a_notification_not_a_traceback(tmp_path: Path) -> None:

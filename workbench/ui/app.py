@@ -19,6 +19,7 @@ from typing import ClassVar
 from textual import work
 from textual.app import App
 from textual.binding import Binding, BindingType
+from textual.css.query import NoMatches
 from textual.message import Message
 from textual.timer import Timer
 from textual.worker import WorkerCancelled, WorkerFailed
@@ -36,6 +37,12 @@ from workbench.ui.screens.workbench_screen import VIEW_CLASSES, WorkbenchScreen
 from workbench.ui.session import Session
 from workbench.ui.widgets.decisions_panel import describe
 from workbench.ui.widgets.frame_grid import FrameGrid
+
+
+#: Stages after which partial results are shown while the rest runs: the answers
+#: once languages are known, the keyword lists once weighting is done (the first
+#: terms run loads lemma tables; compare runs the bootstrap).
+PHASES: tuple[str, ...] = ("identify", "weigh", "compare")
 
 
 class Progress(Message):
@@ -205,15 +212,16 @@ class TermloomApp(App[int]):
     @work(thread=True, group="pipeline", exit_on_error=False)
     def _compute(self, session: Session, stage: str, decisions: Decisions, study: Study, reporter: Reporter) -> None:
         try:
-            if STAGES.index(stage) <= STAGES.index("identify"):
-                # Show the answers as soon as languages are known: the terms stage can
-                # take a while on first use (lemma tables), and the answers are what
-                # the analyst reviews first.
-                early = session.compute(stage, decisions, reporter, study, until="identify")
-                self.call_from_thread(self._publish, session, early)
-                outputs = session.compute("terms", decisions, reporter, study, previous=early)
-            else:
-                outputs = session.compute(stage, decisions, reporter, study)
+            outputs = None
+            start = stage
+            for end in PHASES:
+                if STAGES.index(end) < STAGES.index(start):
+                    continue
+                outputs = session.compute(start, decisions, reporter, study, until=end, previous=outputs)
+                if end == STAGES[-1]:
+                    break
+                self.call_from_thread(self._publish, session, outputs)
+                start = STAGES[STAGES.index(end) + 1]
         except Cancelled:
             self.call_from_thread(self._compute_ended, session, stage, None, None)
         except TermloomError as exc:
@@ -240,7 +248,11 @@ class TermloomApp(App[int]):
             self.post_message(Progress(stage, done, total, message))
 
     def on_progress(self, message: Progress) -> None:
-        self.workbench.status.progress(message.stage, message.done, message.total, message.text)
+        try:
+            status = self.workbench.status
+        except NoMatches:  # a late message while the app closes
+            return
+        status.progress(message.stage, message.done, message.total, message.text)
 
     def _compute_ended(self, session: Session, stage: str, outputs: RunOutputs | None, error: str | None) -> None:
         self._reporter = None

@@ -81,7 +81,7 @@ def _bar(value: Any) -> Text:
 
 TOP_GRID = [
     GridColumn("rank", "#", 3, "right"),
-    GridColumn("term", "term"),
+    GridColumn("term", "term", 30),
     GridColumn("score", "score", 7, "right", _number(4)),
     GridColumn("bar", "", BAR_WIDTH, format=_bar),
     GridColumn("share", "share", 5, "right", _share),
@@ -90,7 +90,7 @@ TOP_GRID = [
 ]
 
 COMPARE_GRID = [
-    GridColumn("term", "term"),
+    GridColumn("term", "term", 26),
     GridColumn("freq_group", "A", 5, "right", _count),
     GridColumn("freq_ref", "B", 5, "right", _count),
     GridColumn("share_group", "A%", 4, "right", _share),
