@@ -195,3 +195,27 @@ def test_session_records_and_marks_the_earliest_stage(tmp_path: Path) -> None:
     finally:
         session.close()
     assert (tmp_path / "wave3.decisions.sqlite").exists()
+
+
+def test_open_a_data_file_writes_a_starter_study_once(tmp_path: Path) -> None:
+    """``termloom open DATAFILE`` writes a starter study beside the data, then reuses it; both open on Sources."""
+    from workbench.ui import prepare
+
+    data = tmp_path / "wave4.csv"
+    data.write_text("rid,country,comment\nr1,Norland,the trains are late again\nr2,Sudmark,friendly staff\n", encoding="utf-8")
+    first = prepare(None, data)
+    assert first.study_path == tmp_path / "wave4.study.toml"
+    assert first.first_view == "sources"
+    assert first.notes and "wave4.study.toml" in first.notes[0]
+    written = first.study_path.read_text(encoding="utf-8")
+    again = prepare(None, data)
+    assert again.study_path == first.study_path
+    assert again.first_view == "sources"
+    assert first.study_path.read_text(encoding="utf-8") == written
+
+
+def test_open_a_missing_study_is_one_line_error(tmp_path: Path) -> None:
+    from workbench.ui import prepare
+
+    with pytest.raises(SettingsError, match="does not exist"):
+        prepare(tmp_path / "nowhere.study.toml", None)

@@ -73,10 +73,19 @@ class TermloomApp(App[int]):
         Binding("ctrl+q", "quit", "Quit", tooltip="Quit (decisions are already saved)"),
     ]
 
-    def __init__(self, study_path: Path | None = None, *, debounce: float = 0.6) -> None:
+    def __init__(
+        self,
+        study_path: Path | None = None,
+        *,
+        debounce: float = 0.6,
+        first_view: str = "answers",
+        notes: list[str] | None = None,
+    ) -> None:
         super().__init__()
         self.study_path = study_path
         self.debounce = debounce
+        self.first_view = first_view
+        self.notes = list(notes or [])
         self.session: Session | None = None
         self._reporter: Reporter | None = None
         self._timer: Timer | None = None
@@ -92,6 +101,10 @@ class TermloomApp(App[int]):
     async def on_mount(self) -> None:
         self._workbench = WorkbenchScreen()
         await self.push_screen(self._workbench)
+        if self.first_view != "answers":
+            self._workbench.show_view(self.first_view)
+        for note in self.notes:
+            self.notify(note, timeout=15)
         if self.study_path is not None:
             self.open_study(self.study_path)
 
