@@ -87,6 +87,22 @@ def test_spreadsheet_frame_leaves_numeric_columns_alone() -> None:
     assert spreadsheet_frame(pd.DataFrame({"=evil": [1]})).columns.tolist() == ["'=evil"]
 
 
+@pytest.mark.parametrize("dtype", [object, "str"])
+def test_long_text_columns_are_neutralised_cell_by_cell_like_short_ones(dtype: object) -> None:
+    """OWASP "CSV Injection": long columns take a column-wise path; every trigger cell still gets its quote,
+    missing cells stay missing, and the result equals the cell-by-cell path on the same values."""
+    base = [OWASP_DDE, "-2", "plain", None, "@home", "\tx", "a=b", ""]
+    long = pd.Series(base * 1000, dtype=dtype)
+    safe = spreadsheet_frame(pd.DataFrame({"text": long}))["text"]
+    short = spreadsheet_frame(pd.DataFrame({"text": pd.Series(base, dtype=dtype)}))["text"]
+    assert len(long) >= 4096 and safe.dtype == object
+    expected = short.tolist()
+    assert expected[0] == "'" + OWASP_DDE and expected[1] == "'-2" and expected[4] == "'@home" and expected[5] == "'\tx"
+    assert expected[2] == "plain" and expected[6] == "a=b" and expected[7] == "" and pd.isna(expected[3])
+    got = safe.tolist()
+    assert all((pd.isna(a) and pd.isna(b)) or a == b for a, b in zip(got, expected * 1000, strict=True))
+
+
 def test_xlsx_cells_are_text_not_formulas_and_numbers_stay_numbers(tmp_path: Path) -> None:
     """OWASP "CSV Injection" applies to XLSX too; openpyxl reads the cells back (data_type 's' vs 'n', no 'f')."""
     frame = pd.DataFrame({"term": [OWASP_DDE, "+plus", "Straße"], "score": [-0.5, 2.0, np.nan], "n": [1, -2, 3]})

@@ -29,7 +29,7 @@ import json
 import math
 import re
 import unicodedata
-from collections.abc import Iterable, Mapping
+from collections.abc import Callable, Iterable, Mapping
 from pathlib import Path
 from typing import Any
 
@@ -94,9 +94,24 @@ def to_jsonable(value: Any) -> Any:
 
 def _cell_text(value: Any) -> Any:
     """Containers become JSON text so one cell holds one readable value."""
-    if isinstance(value, (list, tuple, dict, set, frozenset, np.ndarray)):
+    if isinstance(value, (list, tuple)):
+        # Lists of plain values (terms, flags, masks) need no conversion: json
+        # writes them exactly as to_jsonable would. NaN or numpy values inside
+        # take the general path.
+        try:
+            return json.dumps(value, ensure_ascii=False, allow_nan=False)
+        except (TypeError, ValueError):
+            return json.dumps(to_jsonable(value), ensure_ascii=False)
+    if isinstance(value, (dict, set, frozenset, np.ndarray)):
         return json.dumps(to_jsonable(value), ensure_ascii=False)
     return value
+
+
+def _safe_cell(value: Any) -> Any:
+    if type(value) is str:  # the common case first
+        return neutralise(value)
+    text = _cell_text(value)
+    return neutralise(text) if isinstance(text, str) else text
 
 
 def _is_text_column(series: pd.Series) -> bool:
@@ -115,14 +130,30 @@ def spreadsheet_frame(frame: pd.DataFrame) -> pd.DataFrame:
     Column names are neutralised too (they become the header row).
     """
     out = frame.copy()
-    for column in out.columns:
-        series = out[column]
+    unique = out.columns.is_unique
+    for position, column in enumerate(out.columns):
+        series = out[column] if unique else out.iloc[:, position]
         if _is_text_column(series):
-            out[column] = series.astype(object).map(
-                lambda v: neutralise(t) if isinstance(t := _cell_text(v), str) else t
-            )
+            out.isetitem(position, _safe_column(series))
     out.columns = [neutralise(str(c)) for c in out.columns]
     return out
+
+
+def _safe_column(series: pd.Series) -> pd.Series:
+    """One text column made spreadsheet-safe, as an object column (see :func:`spreadsheet_frame`)."""
+    # Column-wise checks cost a few milliseconds of set-up: worth it from a few thousand cells.
+    plain = len(series) >= 4096 and (
+        isinstance(series.dtype, pd.StringDtype) or pd.api.types.infer_dtype(series, skipna=True) in ("string", "empty")
+    )
+    if not plain:
+        return series.astype(object).map(_safe_cell)
+    # Only text and missing values: find the cells to protect column-wise
+    # (a million-row ledger or corpus has a handful of them).
+    values = series.to_numpy(dtype=object, copy=True)
+    triggered = series.str.startswith(FORMULA_TRIGGERS).to_numpy(dtype=bool, na_value=False)
+    if triggered.any():
+        values[triggered] = [neutralise(v) for v in values[triggered]]
+    return pd.Series(values, index=series.index, dtype=object, name=series.name)
 
 
 # --------------------------------------------------------------------------- CSV
@@ -146,10 +177,24 @@ def write_csv(path: Path, frame: pd.DataFrame) -> Path:
 def json_records(frame: pd.DataFrame) -> list[dict[str, Any]]:
     """Rows of ``frame`` as plain dicts with exact text and full-precision numbers."""
     columns = [str(c) for c in frame.columns]
-    return [
-        {column: to_jsonable(value) for column, value in zip(columns, row, strict=True)}
-        for row in frame.itertuples(index=False, name=None)
-    ]
+    if not columns:
+        return [{} for _ in range(len(frame))]
+    cells = [_json_column(frame.iloc[:, position]) for position in range(frame.shape[1])]
+    return [dict(zip(columns, row, strict=True)) for row in zip(*cells, strict=True)]
+
+
+def _json_column(series: pd.Series) -> list[Any]:
+    """One column as JSON-ready values, converted column-wise where the dtype allows (same values as to_jsonable)."""
+    dtype = series.dtype
+    if isinstance(dtype, np.dtype) and dtype.kind in "biu":
+        return series.tolist()
+    if isinstance(dtype, np.dtype) and dtype.kind == "f":
+        values = series.to_numpy()
+        cells = values.tolist()
+        for position in np.flatnonzero(~np.isfinite(values)).tolist():
+            cells[position] = to_jsonable(values[position])
+        return cells
+    return [value if type(value) is str else to_jsonable(value) for value in series.tolist()]
 
 
 def write_json_table(path: Path, frame: pd.DataFrame) -> Path:
@@ -237,6 +282,7 @@ def write_xlsx(
     tables: Mapping[str, pd.DataFrame],
     max_rows: int = EXCEL_MAX_ROWS,
     descriptions: Mapping[str, str] | None = None,
+    progress: Callable[[str], None] | None = None,
 ) -> tuple[Path, list[str]]:
     """Write one workbook with one sheet per table; returns the path and notes.
 
@@ -250,6 +296,7 @@ def write_xlsx(
     With ``descriptions`` (table name -> a sentence), a first sheet
     ``contents`` lists every table: its first sheet, full name, rows and
     description (sheet names are cut to 31 characters; the full names are here).
+    ``progress`` is called with a short message before each table.
     """
     import xlsxwriter
 
@@ -298,7 +345,9 @@ def write_xlsx(
                     }
                 )
                 notes.extend(_write_sheets(workbook, bold, "contents", contents, ["contents"], per_sheet))
-            for name, frame in tables.items():
+            for number, (name, frame) in enumerate(tables.items()):
+                if progress is not None:
+                    progress(f"{path.name}: sheet {number + 1:,} of {len(tables):,}")
                 notes.extend(_write_sheets(workbook, bold, name, frame, layout[name], per_sheet))
         finally:
             try:
