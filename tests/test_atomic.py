@@ -103,3 +103,29 @@ def test_file_is_durable_before_rename(tmp_path: Path, monkeypatch: pytest.Monke
     write_bytes(tmp_path / "f.bin", b"data")
     assert calls[0] == "fsync" and "replace" in calls
     assert calls.index("replace") > 0
+
+
+def test_deferred_dir_sync_syncs_each_folder_once_after_the_block(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    """Inside deferred_dir_sync a folder is fsync-ed once, after the block, not after every rename
+    (POSIX fsync on a directory makes the renames in it durable — common practice for atomic writes)."""
+    synced: list[Path] = []
+    monkeypatch.setattr(atomic, "_fsync_dir", lambda folder: synced.append(Path(folder)))
+    (tmp_path / "sub").mkdir()
+    with atomic.deferred_dir_sync():
+        for number in range(3):
+            write_text(tmp_path / f"a{number}.txt", "x")
+            write_text(tmp_path / "sub" / f"b{number}.txt", "y")
+        assert synced == []
+    assert sorted(synced) == [tmp_path, tmp_path / "sub"]
+    write_text(tmp_path / "after.txt", "z")
+    assert synced[-1] == tmp_path and len(synced) == 3
+
+
+def test_deferred_dir_sync_skips_the_syncs_when_the_block_fails(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    synced: list[Path] = []
+    monkeypatch.setattr(atomic, "_fsync_dir", lambda folder: synced.append(Path(folder)))
+    with pytest.raises(RuntimeError):
+        with atomic.deferred_dir_sync():
+            write_text(tmp_path / "a.txt", "x")
+            raise RuntimeError("export cancelled")
+    assert synced == []

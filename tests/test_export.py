@@ -433,3 +433,30 @@ def test_safe_name_is_unique_and_short() -> None:
     names = [safe_name(n, used) for n in ["DE", "de", "d/e", "d\\e", "й" * 200]]
     assert names[:4] == ["DE", "de-2", "d-e", "d-e-2"]
     assert len(names[4].encode("utf-8")) <= 100
+
+
+def test_long_steps_report_progress_inside_them(run: RunOutputs, tmp_path: Path) -> None:
+    """Charts, table groups and workbooks report each item, so a front end never sits without news;
+    cancelling between two charts stops before the next one (and writes no manifest)."""
+    reporter = Reporter()
+    seen: list[tuple[int, int, str]] = []
+
+    def callback(stage: str, done: int, total: int, message: str) -> None:
+        seen.append((done, total, message))
+        if message.startswith("charts: 2 of"):
+            reporter.cancel.set()
+
+    reporter.callback = callback
+    out = tmp_path / "progress"
+    with pytest.raises(Cancelled):
+        write_run(out, run, reporter)
+    messages = [m for _d, _t, m in seen]
+    assert any(m.startswith("compare tables: 1 of") for m in messages)
+    assert any(m.startswith("compare.xlsx: sheet 1 of") for m in messages)
+    assert messages[-1].startswith("charts: 2 of")
+    # The chart under way when the user cancelled is finished (PNG and SVG); the third is not started.
+    charts = sorted(p.name for p in (out / "charts").iterdir())
+    assert len(charts) == 4 and not (out / MANIFEST_NAME).exists()
+    # Progress inside a step keeps that step's position on the bar.
+    steps = {d for d, _t, m in seen if m.startswith("charts")}
+    assert len(steps) == 1 and all(t == seen[0][1] for _d, t, _m in seen)

@@ -8,6 +8,12 @@ and Windows both perform atomically within one file system. The folder is
 survives a power cut. On any failure the temporary file is removed and the
 target is untouched.
 
+An export writes hundreds of files into a few folders; inside
+:func:`deferred_dir_sync` each folder is ``fsync``-ed once when the block
+ends instead of after every rename (each sync costs milliseconds on a busy
+disk). The export writes its manifest after the block, so a manifest never
+lists a file whose rename could still be lost.
+
 Temporary names start with :data:`TEMP_PREFIX` and end with the target's own
 name, so libraries that infer a format from the suffix (``scipy.sparse.save_npz``
 appends ``.npz`` when it is missing, matplotlib picks the format from it) see
@@ -24,6 +30,7 @@ import os
 import secrets
 from collections.abc import Iterator
 from contextlib import contextmanager
+from contextvars import ContextVar
 from pathlib import Path
 from typing import IO, Any
 
@@ -69,6 +76,34 @@ def _fsync_dir(folder: Path) -> None:
         os.close(fd)
 
 
+#: Folders waiting for their fsync inside :func:`deferred_dir_sync` (``None`` outside it).
+_PENDING_DIRS: ContextVar[set[Path] | None] = ContextVar("termloom_pending_dirs", default=None)
+
+
+@contextmanager
+def deferred_dir_sync() -> Iterator[None]:
+    """Within the block, sync each folder written into once, when the block ends without error."""
+    folders: set[Path] = set()
+    token = _PENDING_DIRS.set(folders)
+    try:
+        yield
+    finally:
+        _PENDING_DIRS.reset(token)
+    for folder in sorted(folders):
+        try:
+            _fsync_dir(folder)
+        except OSError as exc:
+            raise OutputError(describe_os_error(exc, folder)) from None
+
+
+def _sync_folder_of(target: Path) -> None:
+    pending = _PENDING_DIRS.get()
+    if pending is None:
+        _fsync_dir(target.parent)
+    else:
+        pending.add(target.parent)
+
+
 def temp_name(target: Path) -> Path:
     """A fresh temporary path beside ``target``, ending with ``target``'s name."""
     return target.with_name(f"{TEMP_PREFIX}{secrets.token_hex(4)}-{target.name}")
@@ -102,7 +137,7 @@ def atomic_path(target: Path | str) -> Iterator[Path]:
             raise OutputError(f"nothing was written to {target}; this is a bug in termloom, please report it")
         _fsync_file(tmp)
         os.replace(tmp, target)
-        _fsync_dir(target.parent)
+        _sync_folder_of(target)
     except OSError as exc:
         _remove_quietly(tmp)
         raise OutputError(describe_os_error(exc, target)) from None

@@ -189,12 +189,14 @@ def save_figure(figure: Figure, path: Path) -> tuple[Path, list[str]]:
     if kind not in ("png", "svg"):
         raise ValueError(f"charts are saved as .png or .svg, not {path.suffix!r}")
     metadata = {"Date": None} if kind == "svg" else {"Software": None}
+    # zlib level 1: a third less time than the default 6 for a PNG ~8 % larger.
+    extra = {"pil_kwargs": {"compress_level": 1}} if kind == "png" else {}
     families = list(chart_fonts()[0])
     notes: list[str] = []
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         with matplotlib.rc_context({**_RC, "font.family": families}), atomic_path(path) as tmp:
-            figure.savefig(str(tmp), format=kind, dpi=150, metadata=metadata)
+            figure.savefig(str(tmp), format=kind, dpi=150, metadata=metadata, **extra)
     glyph_warnings = sorted({str(w.message) for w in caught if "missing from" in str(w.message)})
     if glyph_warnings:
         notes.append(f"chart {path.name}: some characters have no glyph in the installed fonts ({glyph_warnings[0]})")

@@ -62,7 +62,7 @@ import pandas as pd
 import scipy.sparse as sp
 
 from workbench.core import corpus as C
-from workbench.core.atomic import TEMP_PREFIX, atomic_path, describe_os_error, remove_stale_temps
+from workbench.core.atomic import TEMP_PREFIX, atomic_path, deferred_dir_sync, describe_os_error, remove_stale_temps
 from workbench.core.charts import concept_chart, concept_matrix, keyword_chart, save_figure_as, top_terms
 from workbench.core.errors import InputError, OutputError
 from workbench.core.manifest import MANIFEST_NAME, read_manifest, run_content, write_manifest
@@ -230,6 +230,12 @@ class _Sink:
         self.notes: list[str] = []
         self.total = total
         self.inputs = inputs or {}
+        #: The step being written, for progress reports from inside a step.
+        self.step = 0
+
+    def progress(self, message: str) -> None:
+        """Report progress inside the current step (and stop here if the user cancelled)."""
+        self.reporter.update(STAGE, self.step, self.total, message)
 
     def wants(self, *formats: str) -> bool:
         return bool(self.formats.intersection(formats))
@@ -296,9 +302,12 @@ def write_run(out_dir: Path, run: RunOutputs, reporter: Reporter) -> list[Path]:
     inputs = study_inputs(run.study)
     sink = _Sink(out_dir, run.study.export.formats, reporter, total=len(steps) + 1, inputs=inputs)
     try:
-        for number, (label, write) in enumerate(steps):
-            reporter.update(STAGE, number, sink.total, f"writing {label}")
-            write(sink)
+        # Folders are synced once each before the manifest is written (see atomic.py).
+        with deferred_dir_sync():
+            for number, (label, write) in enumerate(steps):
+                sink.step = number
+                reporter.update(STAGE, number, sink.total, f"writing {label}")
+                write(sink)
         reporter.update(STAGE, len(steps), sink.total, "writing the manifest")
         written = {p.resolve().relative_to(out_dir.resolve()).as_posix() for p in sink.files}
         removed = _remove_stale(out_dir, previous - written - {MANIFEST_NAME}, inputs)
@@ -626,8 +635,8 @@ def _write_table_group(
     if not tables:
         return
     used: set[str] = set()
-    for name, frame in tables.items():
-        sink.reporter.check(STAGE)
+    for number, (name, frame) in enumerate(tables.items()):
+        sink.progress(f"{folder} tables: {number + 1:,} of {len(tables):,}")
         stem = safe_name(name, used)
         if sink.wants("csv"):
             sink.add(write_csv(sink.path(folder, f"{stem}.csv"), frame))
@@ -636,7 +645,9 @@ def _write_table_group(
     if sink.wants("xlsx"):
         if descriptions is None:
             descriptions = {name: _DESCRIPTIONS.get(name.split("__")[0], _DESCRIPTIONS.get(folder, "")) for name in tables}
-        path, notes = write_xlsx(sink.path(folder, f"{folder}.xlsx"), tables, descriptions=descriptions)
+        path, notes = write_xlsx(
+            sink.path(folder, f"{folder}.xlsx"), tables, descriptions=descriptions, progress=sink.progress
+        )
         sink.add(path, notes)
 
 
@@ -703,8 +714,8 @@ def _write_charts(sink: _Sink, run: RunOutputs) -> None:
     if concepts is not None:
         xlabel, wide = concepts
         charts.append(("concepts", lambda: concept_chart(wide.head(top_k), "Concepts across languages", xlabel)))
-    for stem, make in charts:
-        sink.reporter.check(STAGE)
+    for number, (stem, make) in enumerate(charts):
+        sink.progress(f"charts: {number + 1:,} of {len(charts):,}")
         figure = make()
         name = safe_name(stem, used)
         paths = [sink.path("charts", f"{name}.{kind}") for kind in kinds]
