@@ -460,3 +460,41 @@ def test_long_steps_report_progress_inside_them(run: RunOutputs, tmp_path: Path)
     # Progress inside a step keeps that step's position on the bar.
     steps = {d for d, _t, m in seen if m.startswith("charts")}
     assert len(steps) == 1 and all(t == seen[0][1] for _d, t, _m in seen)
+
+
+def _keyness(rows: int, significant: int) -> pd.DataFrame:
+    g2 = np.linspace(500.0, 0.1, rows)
+    return pd.DataFrame({"term": [f"t{i:05d}" for i in range(rows)], "g2": g2, "significant": np.arange(rows) < significant})
+
+
+def test_workbook_sheets_of_long_term_tables_hold_their_top_rows(run: RunOutputs, tmp_path: Path) -> None:
+    """Term-by-term tables (keyness, vocabulary) keep their first XLSX_TERM_ROWS rows in the workbook,
+    or every significant keyness row when there are more; the CSV holds every row, the contents sheet
+    says where; other tables are never cut."""
+    from types import SimpleNamespace
+
+    from workbench.core.export import XLSX_TERM_ROWS
+
+    tables = {
+        "keyness__country__DE__vs_rest__de": _keyness(XLSX_TERM_ROWS + 500, 40),
+        "keyness__country__FR__vs_rest__de": _keyness(XLSX_TERM_ROWS + 500, XLSX_TERM_ROWS + 200),
+        "group_keywords__country__de": _keyness(XLSX_TERM_ROWS + 300, 0),
+    }
+    run.compared = SimpleNamespace(tables=tables, table_notes={}, findings=[], notes=[], warnings=[])
+    run.study.export.formats = ["csv", "xlsx"]
+    out = tmp_path / "cut"
+    write_run(out, run, Reporter())
+    book = openpyxl.load_workbook(out / "compare" / "compare.xlsx", read_only=True)
+    sizes = {sheet.title: sheet.max_row - 1 for sheet in book.worksheets}
+    contents = {row[1]: row for row in book["contents"].iter_rows(min_row=2, values_only=True)}
+    first, _second, other = (tables[name] for name in tables)
+    assert sizes[_sheet_of(contents, "keyness__country__DE__vs_rest__de")] == XLSX_TERM_ROWS
+    assert sizes[_sheet_of(contents, "keyness__country__FR__vs_rest__de")] == XLSX_TERM_ROWS + 200
+    assert sizes[_sheet_of(contents, "group_keywords__country__de")] == len(other)
+    described = contents["keyness__country__DE__vs_rest__de"][3]
+    assert f"first {XLSX_TERM_ROWS:,} of {len(first):,} rows" in described and "compare/keyness__country__DE__vs_rest__de.csv" in described
+    assert len(pd.read_csv(out / "compare" / "keyness__country__DE__vs_rest__de.csv", encoding="utf-8-sig")) == len(first)
+
+
+def _sheet_of(contents: dict, table: str) -> str:
+    return contents[table][0]
