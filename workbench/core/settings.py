@@ -356,7 +356,9 @@ def read_study_table(path: Path) -> dict[str, Any]:
 #: tomllib's work and memory grow with the square of a key's parts (a 60 KB line
 #: ``a.b.b.b...`` costs gigabytes), so longer keys are refused before parsing.
 MAX_KEY_PARTS = 32
-_KEY_LINE = re.compile(r"^[ \t]*(?:\[\[?([^\]\n]*)\]|([\w\-. \t\"']*)=)", re.MULTILINE)
+# Leading blanks belong to the key class itself: a separate [ \t]* before it made a line of
+# spaces cost quadratic time (tests/bench/bench_regex.py).
+_KEY_LINE = re.compile(r"^(?:[ \t]*\[\[?([^\]\n]*)\]|([\w\-. \t\"']*)=)", re.MULTILINE)
 
 
 def check_key_depth(text: str, where: str) -> None:
