@@ -60,7 +60,6 @@ from __future__ import annotations
 import re
 import time
 import unicodedata
-from collections import Counter
 from collections.abc import Callable, Iterable
 from pathlib import Path, PurePosixPath
 from typing import TYPE_CHECKING, Any
@@ -464,48 +463,68 @@ def respondent_table(run: RunOutputs, answers: pd.DataFrame | None) -> pd.DataFr
     if answers is None or C.RESPONDENT_ID not in answers:
         return table.reset_index(drop=True)
     ids = answers[C.RESPONDENT_ID].astype(str)
-    table["n_answers"] = table[C.RESPONDENT_ID].map(ids.value_counts()).fillna(0).astype(np.int32)
+    # One code per distinct id over the table and the answers, so every per-respondent figure is a
+    # bincount or a boolean array indexed by code (a row repeating an id gets that id's figures).
+    codes, uniques = pd.factorize(pd.concat([table[C.RESPONDENT_ID], ids], ignore_index=True))
+    row_code, answer_code = codes[: len(table)], codes[len(table) :]
+    n_ids = len(uniques)
+    table["n_answers"] = np.bincount(answer_code, minlength=n_ids)[row_code].astype(np.int32)
     if IN_MATRIX in answers:
-        in_matrix = ids[answers[IN_MATRIX].to_numpy(dtype=bool)]
-        table["n_in_matrix"] = table[C.RESPONDENT_ID].map(in_matrix.value_counts()).fillna(0).astype(np.int32)
+        in_matrix = answers[IN_MATRIX].to_numpy(dtype=bool)
+        table["n_in_matrix"] = np.bincount(answer_code[in_matrix], minlength=n_ids)[row_code].astype(np.int32)
     if C.LANGUAGE in answers:
-        main = answers.assign(_id=ids).groupby("_id")[C.LANGUAGE].agg(_most_common)
-        table["language"] = table[C.RESPONDENT_ID].map(main).fillna("").astype(str)
+        table["language"] = _main_language(answer_code, answers[C.LANGUAGE], n_ids)[row_code]
     if C.FLAGS in answers:
-        flagged: dict[str, set[str]] = {}
-        for rid, flags in zip(ids, answers[C.FLAGS], strict=True):
+        flagged: dict[str, list[int]] = {}
+        for code, flags in zip(answer_code.tolist(), answers[C.FLAGS], strict=True):
             for flag in _as_list(flags):
-                flagged.setdefault(str(flag), set()).add(rid)
+                flagged.setdefault(str(flag), []).append(code)
         for flag in sorted(flagged):
-            table[f"flag_{flag}"] = table[C.RESPONDENT_ID].isin(flagged[flag]).astype(np.int8)
+            table[f"flag_{flag}"] = _any_of(flagged[flag], n_ids)[row_code]
     mapping = getattr(run.glossary, "mapping", None) if run.glossary is not None else None
     if mapping and C.TERMS in answers and C.LANGUAGE in answers:
         use = answers[IN_MATRIX].to_numpy(dtype=bool) if IN_MATRIX in answers else np.ones(len(answers), bool)
-        having: dict[str, set[str]] = {str(c): set() for c in sorted(set(mapping.values()), key=str)}
-        for rid, language, terms, ok in zip(ids, answers[C.LANGUAGE], answers[C.TERMS], use, strict=True):
+        having: dict[str, list[int]] = {str(c): [] for c in sorted(set(mapping.values()), key=str)}
+        for code, language, terms, ok in zip(answer_code.tolist(), answers[C.LANGUAGE], answers[C.TERMS], use, strict=True):
             if not ok:
                 continue
             for term in _as_list(terms):
                 concept = mapping.get((language, term))
                 if concept is not None:
-                    having[str(concept)].add(rid)
+                    having[str(concept)].append(code)
         for concept, members in having.items():
-            table[f"c_{concept}"] = table[C.RESPONDENT_ID].isin(members).astype(np.int8)
+            table[f"c_{concept}"] = _any_of(members, n_ids)[row_code]
     return table.reset_index(drop=True)
+
+
+def _any_of(codes: list[int], size: int) -> np.ndarray:
+    """0/1 per id code: 1 for the codes listed."""
+    out = np.zeros(size, dtype=np.int8)
+    out[np.asarray(codes, dtype=np.int64)] = 1
+    return out
+
+
+def _main_language(answer_code: np.ndarray, languages: pd.Series, size: int) -> np.ndarray:
+    """Per id code, the language most of its answers carry (ties: the smallest code; none: "")."""
+    values = languages.to_numpy(dtype=object)
+    usable = np.fromiter((isinstance(v, str) and bool(v) for v in values), dtype=bool, count=len(values))
+    counts = (
+        pd.DataFrame({"code": answer_code[usable], "language": values[usable].astype(str)})
+        .groupby(["code", "language"], sort=False)
+        .size()
+        .reset_index(name="n")
+        .sort_values(["code", "n", "language"], ascending=[True, False, True], kind="stable")
+        .drop_duplicates("code")
+    )
+    out = np.full(size, "", dtype=object)
+    out[counts["code"].to_numpy()] = counts["language"].to_numpy(dtype=object)
+    return out
 
 
 def _as_list(value: Any) -> list[Any]:
     if isinstance(value, (list, tuple, np.ndarray)):
         return list(value)
     return []
-
-
-def _most_common(values: pd.Series) -> str:
-    counts = Counter(v for v in values if isinstance(v, str) and v)
-    if not counts:
-        return ""
-    best = max(counts.values())
-    return sorted(v for v, n in counts.items() if n == best)[0]
 
 
 def _write_respondents(sink: _Sink, run: RunOutputs, answers: pd.DataFrame | None) -> None:
