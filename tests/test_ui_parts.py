@@ -16,7 +16,7 @@ import pytest
 
 from workbench.core.errors import SettingsError
 from workbench.core.settings import load_study
-from workbench.ui.answer_filter import EXCLUDED, SUSPECT, UNFLAGGED, AnswerIndex, AnswerQuery
+from workbench.ui.answer_filter import EXCLUDED, FALLBACK, SUSPECT, UNFLAGGED, AnswerIndex, AnswerQuery
 from workbench.ui.bars import bar
 from workbench.ui.session import STAGE_FOR_KIND, Session, earliest
 from workbench.ui.study_file import columns_table, write_columns
@@ -58,14 +58,23 @@ def test_filters_combine_language_group_question_and_text() -> None:
 
 
 def test_suspect_languages_and_order_by_confidence() -> None:
-    """Suspect = und, mixed, fallback-labelled, under the confidence bar, or disagreeing with the hint."""
-    index = AnswerIndex(_answers(), min_confidence=0.8)
+    """Suspect = detected near the bar or against the hint, mixed, or und; never junk, never decided."""
+    answers = _answers()
+    extra = answers.iloc[[0, 0]].copy()
+    extra["answer_id"] = ["r6|q1", "r7|q1"]
+    extra["clean_text"] = ["Dinner", "the wifi keeps dropping out"]
+    extra["language"] = ["de", "en"]
+    extra["language_source"] = ["hint", "detector"]
+    extra["confidence"] = [0.0, 0.85]
+    answers = pd.concat([answers, extra], ignore_index=True)
+    index = AnswerIndex(answers, min_confidence=0.8)
     suspects = AnswerQuery(flag=SUSPECT, order="confidence")
-    # r2 disagrees with its hint (de vs en), r3 is und, r4 came from the hint at 0.5, r5 is mixed.
-    assert list(index.ids[index.select(suspects)]) == ["r3|q1", "r4|q1", "r2|q1", "r5|q2"]
-    decided = _answers()
-    decided.loc[1, "language_source"] = "decision"
-    index = AnswerIndex(decided, min_confidence=0.8)
+    # r2 disagrees with its hint (de vs en); r5 is mixed; r7 (0.85) is below 0.9, halfway from the 0.8 bar to 1.
+    # r3 (und, a non-answer) and r4 (too short) are junk: their language never counts.
+    assert list(index.ids[index.select(suspects)]) == ["r7|q1", "r2|q1", "r5|q2"]
+    assert list(index.ids[index.select(AnswerQuery(flag=FALLBACK))]) == ["r6|q1"]
+    answers.loc[1, "language_source"] = "decision"
+    index = AnswerIndex(answers, min_confidence=0.8)
     assert "r2|q1" not in set(index.ids[index.select(suspects)])
 
 

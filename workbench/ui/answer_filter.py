@@ -14,12 +14,17 @@ import numpy as np
 import pandas as pd
 
 from workbench.core import corpus as C
+from workbench.core.nonanswer import JUNK_CODES
 
 #: Pseudo-flags offered beside the real flag codes.
 SUSPECT = "suspect language"
+FALLBACK = "language by fallback"
 UNFLAGGED = "no flag"
 EXCLUDED = "excluded"
 ANY_FLAG = "any flag"
+#: Detector labels in this lower share of the range between the study's confidence
+#: bar and 1 count as suspect (bar 0.6: below 0.8).
+SUSPECT_SHARE = 0.5
 
 
 @dataclass(frozen=True)
@@ -47,7 +52,15 @@ class AnswerIndex:
         self._excluded = self.frame[C.ANSWER_ID].isin(excluded).to_numpy() if excluded else np.zeros(self.size, bool)
         self._lower: pd.Series | None = None
         self._flag_masks: dict[str, np.ndarray] = {}
+        self._suspect: np.ndarray | None = None
+        self._fallback: np.ndarray | None = None
+        self._strings: dict[str, np.ndarray] = {}
         self._position = {answer_id: i for i, answer_id in enumerate(self.ids)}
+        # Built now rather than on the first keystroke of a filter, which must stay quick.
+        self._text()
+        for column in (C.LANGUAGE, C.QUESTION):
+            if column in self.frame:
+                self._strings_of(column)
 
     # ------------------------------------------------------------------ choices for the filter bar
 
@@ -104,32 +117,70 @@ class AnswerIndex:
         return self._flag_masks[code]
 
     def suspect(self) -> np.ndarray:
-        """Answers whose language deserves a second look, unless the user already decided it.
+        """Answers whose detected language deserves a second look.
 
-        Suspect means: undetermined, mixed, labelled by a fallback instead of the
-        detector, below the study's confidence bar, or disagreeing with the
-        language-hint column.
+        Suspect means the detector labelled the answer but with a confidence in
+        the lower half between the study's bar and 1 (bar 0.6: below 0.8), or
+        against the language-hint column; or the answer mixes languages, or
+        stays undetermined. Answers already decided by the user, and junk
+        (non-answers, mash...), which never enters weighting, are left out. The
+        halfway line is this view's own rule of thumb, not a published threshold.
         """
+        if self._suspect is None:
+            self._suspect = self._find_suspects()
+        return self._suspect
+
+    def fallback(self) -> np.ndarray:
+        """Answers labelled by the fallback (hint column or study default), not junk, not decided.
+
+        These are too short or too unsure for the detector; the fallback is
+        usually right, but an answer written in another language than the
+        questionnaire's gets the questionnaire's.
+        """
+        if self._fallback is None:
+            source = self._strings_of(C.LANGUAGE_SOURCE) if C.LANGUAGE_SOURCE in self.frame else None
+            if source is None:
+                self._fallback = np.zeros(self.size, bool)
+            else:
+                self._fallback = np.isin(source, ["hint", "default"]) & ~self._junk()
+        return self._fallback
+
+    def _junk(self) -> np.ndarray:
+        if "_junk" not in self._flag_masks:
+            if C.FLAGS not in self.frame:
+                self._flag_masks["_junk"] = np.zeros(self.size, bool)
+            else:
+                self._flag_masks["_junk"] = np.fromiter(
+                    (flags is not None and any(str(f) in JUNK_CODES for f in flags) for flags in self.frame[C.FLAGS]),
+                    bool,
+                    self.size,
+                )
+        return self._flag_masks["_junk"]
+
+    def _strings_of(self, column: str) -> np.ndarray:
+        """A column as a NumPy array of str, built once (comparisons on it take a few ms for 100k rows)."""
+        if column not in self._strings:
+            self._strings[column] = self.frame[column].astype(str).to_numpy(dtype=object).astype(str)
+        return self._strings[column]
+
+    def _find_suspects(self) -> np.ndarray:
         frame = self.frame
         if C.LANGUAGE not in frame:
             return np.zeros(self.size, bool)
-        language = frame[C.LANGUAGE].astype(str)
-        mask = (language == "und").to_numpy().copy()
+        language = self._strings_of(C.LANGUAGE)
+        source = self._strings_of(C.LANGUAGE_SOURCE) if C.LANGUAGE_SOURCE in frame else np.full(self.size, "detector")
+        detected = source == "detector"
+        mask = language == "und"
         if C.MIXED in frame:
             mask |= frame[C.MIXED].fillna(False).astype(bool).to_numpy()
         if C.CONFIDENCE in frame:
-            mask |= (frame[C.CONFIDENCE].fillna(0.0).to_numpy(float) < self.min_confidence)
-        if C.LANGUAGE_SOURCE in frame:
-            source = frame[C.LANGUAGE_SOURCE].astype(str)
-            mask |= source.isin(["hint", "default"]).to_numpy()
-            mask &= (source != "decision").to_numpy()
+            confidence = frame[C.CONFIDENCE].fillna(0.0).to_numpy(float)
+            line = self.min_confidence + SUSPECT_SHARE * (1.0 - self.min_confidence)
+            mask |= detected & (confidence < line)
         if C.HINT in frame:
-            hint = frame[C.HINT].fillna("").astype(str).str.strip().str.lower()
-            disagree = ((hint != "") & (hint != language)).to_numpy().copy()
-            if C.LANGUAGE_SOURCE in frame:
-                disagree &= (frame[C.LANGUAGE_SOURCE].astype(str) != "decision").to_numpy()
-            mask |= disagree
-        return mask
+            hint = frame[C.HINT].fillna("").astype(str).str.strip().str.lower().to_numpy(dtype=object).astype(str)
+            mask |= detected & (hint != "") & (hint != language)
+        return mask & (source != "decision") & ~self._junk()
 
     def excluded(self) -> np.ndarray:
         return self._excluded
@@ -139,16 +190,18 @@ class AnswerIndex:
         frame = self.frame
         mask = np.ones(self.size, bool)
         if query.language and C.LANGUAGE in frame:
-            mask &= (frame[C.LANGUAGE].astype(str) == query.language).to_numpy()
+            mask &= self._strings_of(C.LANGUAGE) == query.language
         if query.question:
-            mask &= (frame[C.QUESTION].astype(str) == query.question).to_numpy()
+            mask &= self._strings_of(C.QUESTION) == query.question
         if query.group and "=" in query.group:
             name, value = query.group.split("=", 1)
             column = C.group_column(name)
             if column in frame:
-                mask &= (frame[column].astype(str) == value).to_numpy()
+                mask &= self._strings_of(column) == value
         if query.flag == SUSPECT:
             mask &= self.suspect()
+        elif query.flag == FALLBACK:
+            mask &= self.fallback()
         elif query.flag == EXCLUDED:
             mask &= self._excluded
         elif query.flag == UNFLAGGED:
@@ -159,7 +212,8 @@ class AnswerIndex:
         if needle:
             # Only search rows still in play: cheap when other filters narrowed the table.
             candidates = np.flatnonzero(mask)
-            hits = self._text().iloc[candidates].str.contains(needle, regex=False).to_numpy()
+            text = self._text() if len(candidates) == self.size else self._text().iloc[candidates]
+            hits = text.str.contains(needle, regex=False).to_numpy()
             mask = np.zeros(self.size, bool)
             mask[candidates[hits]] = True
         positions = np.flatnonzero(mask)

@@ -16,7 +16,7 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import ClassVar
 
-from textual import work
+from textual import events, work
 from textual.app import App
 from textual.binding import Binding, BindingType
 from textual.css.query import NoMatches
@@ -35,6 +35,7 @@ from workbench.ui.screens.help_screen import HelpScreen
 from workbench.ui.screens.prompt_screen import PromptScreen
 from workbench.ui.screens.workbench_screen import VIEW_CLASSES, WorkbenchScreen
 from workbench.ui.session import Session
+from workbench.ui.stray_keys import reroute_stray_key
 from workbench.ui.widgets.decisions_panel import describe
 from workbench.ui.widgets.frame_grid import FrameGrid
 
@@ -376,6 +377,10 @@ class TermloomApp(App[int]):
                 return
 
     # ------------------------------------------------------------------ actions
+
+    def on_key(self, event: events.Key) -> None:
+        # Runs before the app's binding check; a key whose table lost the focus goes to the focused widget.
+        reroute_stray_key(self, event)
 
     def action_show_view(self, view: str) -> None:
         self.workbench.show_view(view)

@@ -39,6 +39,7 @@ def _value(row: dict[str, Any], key: str) -> str:
 
 
 class AnswerScreen(ModalScreen[None]):
+    AUTO_FOCUS = "#answer-body"
     BINDINGS: ClassVar[list[BindingType]] = [
         Binding("escape,enter,q", "close", "Close"),
         Binding("r", "toggle_raw", "Raw text", tooltip="Show / hide the raw text (it may hold personal data)"),
@@ -90,7 +91,6 @@ class AnswerScreen(ModalScreen[None]):
 
     def on_mount(self) -> None:
         self.query_one("#raw-text").display = False
-        self.query_one("#answer-body").focus()
 
     def action_toggle_raw(self) -> None:
         raw = self.query_one("#raw-text")

@@ -15,6 +15,7 @@ from workbench.ui.keymap import KeyAction
 
 
 class HelpScreen(ModalScreen[None]):
+    AUTO_FOCUS = "#help-body"
     BINDINGS: ClassVar[list[BindingType]] = [
         Binding("escape,question_mark,q", "dismiss_help", "Close"),
     ]
@@ -41,9 +42,6 @@ class HelpScreen(ModalScreen[None]):
             with VerticalScroll(id="help-body"):
                 yield Static(table)
             yield Static("↑↓ scroll · Esc or ? close", classes="dialog-hint")
-
-    def on_mount(self) -> None:
-        self.query_one("#help-body").focus()
 
     def action_dismiss_help(self) -> None:
         self.dismiss(None)

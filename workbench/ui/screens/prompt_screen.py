@@ -14,6 +14,7 @@ from textual.widgets import Input, Static
 class PromptScreen(ModalScreen[str | None]):
     """Returns the entered text (stripped), or ``None`` on Escape or an empty entry."""
 
+    AUTO_FOCUS = "#prompt-input"
     BINDINGS: ClassVar[list[BindingType]] = [Binding("escape", "dismiss_none", "Cancel")]
 
     def __init__(self, title: str, value: str = "", placeholder: str = "") -> None:
@@ -27,9 +28,6 @@ class PromptScreen(ModalScreen[str | None]):
             yield Static(self.title_text, classes="dialog-title")
             yield Input(self.value, placeholder=self.placeholder, id="prompt-input")
             yield Static("Enter accept · Esc cancel", classes="dialog-hint")
-
-    def on_mount(self) -> None:
-        self.query_one(Input).focus()
 
     def on_input_submitted(self, event: Input.Submitted) -> None:
         text = event.value.strip()

@@ -55,7 +55,7 @@ class WorkbenchScreen(Screen[None]):
         view = self.view(view_id)
         target = view.main_widget()
         if target is not None:
-            target.focus()
+            self.set_focus(target)  # at once: keys typed right after the switch belong to the new view
         return view
 
     def on_tabbed_content_tab_activated(self, event: TabbedContent.TabActivated) -> None:

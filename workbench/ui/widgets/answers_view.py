@@ -19,9 +19,11 @@ from textual.widget import Widget
 from textual.widgets import Input, Select, Static
 
 from workbench.core import corpus as C
+from workbench.core.errors import TermloomError
 from workbench.core.nonanswer import JUNK_CODES
 from workbench.core.pii import PLACEHOLDER_RE
-from workbench.ui.answer_filter import ANY_FLAG, EXCLUDED, SUSPECT, UNFLAGGED, AnswerIndex, AnswerQuery
+from workbench.core.profiles import load_profile
+from workbench.ui.answer_filter import ANY_FLAG, EXCLUDED, FALLBACK, SUSPECT, UNFLAGGED, AnswerIndex, AnswerQuery
 from workbench.ui.screens.answer_screen import AnswerScreen
 from workbench.ui.screens.choice_screen import ChoiceScreen
 from workbench.ui.session import Session
@@ -37,6 +39,14 @@ def highlight_placeholders(text: str) -> Text:
     return shown
 
 
+def language_name(code: str) -> str:
+    """The language's name from its profile, or '' when there is none."""
+    try:
+        return load_profile(code).name
+    except TermloomError:
+        return ""
+
+
 def _confidence(value: Any) -> str:
     try:
         return f"{float(value):.2f}"
@@ -44,29 +54,30 @@ def _confidence(value: Any) -> str:
         return ""
 
 
-def _language(value: Any) -> Text:
+def _language(value: Any) -> tuple[str, str]:
     code = "" if value is None else str(value)
-    return Text(code, style="bold red" if code == "und" else "bold")
+    return code, "bold red" if code == "und" else "bold"
 
 
-def _source(value: Any) -> Text:
+def _source(value: Any) -> tuple[str, str]:
     source = "" if value is None else str(value)
     short = {"detector": "det", "hint": "hint", "default": "dflt", "decision": "you"}.get(source, source[:4])
-    return Text(short, style="bold green" if source == "decision" else ("yellow" if source in ("hint", "default") else "dim"))
+    return short, "bold green" if source == "decision" else ("yellow" if source in ("hint", "default") else "dim")
 
 
-def _flags(value: Any) -> Text:
+def _flags(value: Any) -> tuple[str, str]:
     if value is None or not len(value):
-        return Text("")
-    return Text(",".join(str(v) for v in value), style="yellow")
+        return "", ""
+    return ",".join(str(v) for v in value), "yellow"
 
 
-def _text(value: Any) -> Text:
-    return highlight_placeholders("" if value is None else str(value))
+def _text(value: Any) -> str | Text:
+    text = "" if value is None else str(value)
+    return highlight_placeholders(text) if "⟨" in text else text
 
 
-def _state(value: Any) -> Text:
-    return Text({"out": "✗", "in": "", "junk": "·"}.get(str(value), ""), style="red")
+def _state(value: Any) -> tuple[str, str]:
+    return {"out": "✗", "in": "", "junk": "·"}.get(str(value), ""), "red"
 
 
 COLUMNS = [
@@ -87,7 +98,8 @@ class AnswersView(ViewBase):
 
     BINDINGS: ClassVar[list[BindingType]] = [
         Binding("slash", "search", "Search", tooltip="Search the answer texts"),
-        Binding("m", "suspects", "Suspects", tooltip="Show answers whose language looks wrong, least sure first (toggle)"),
+        Binding("m", "suspects", "Suspects", tooltip="Show answers whose detected language looks wrong, least sure first (toggle)"),
+        Binding("b", "fallbacks", "By fallback", show=False, tooltip="Show answers labelled by the hint / default language, not the detector (toggle)"),
         Binding("l", "set_language", "Language", tooltip="Set the language of the marked answers, or of this one"),
         Binding("n", "toggle_non_answer", "Non-answer", tooltip="Mark this answer as a non-answer, or as a real answer"),
         Binding("x", "toggle_exclude", "Exclude", tooltip="Exclude the marked answers (or this one) from the analysis, or include them again"),
@@ -151,7 +163,7 @@ class AnswersView(ViewBase):
     def _fill_choices(self) -> None:
         assert self.index is not None
         languages = self.index.languages()
-        flags = [SUSPECT, ANY_FLAG, UNFLAGGED, EXCLUDED, *self.index.flag_codes()]
+        flags = [SUSPECT, FALLBACK, ANY_FLAG, UNFLAGGED, EXCLUDED, *self.index.flag_codes()]
         groups = self.index.groups()
         questions = self.index.questions()
         key = (tuple(languages), tuple(flags), tuple(groups), tuple(questions))
@@ -174,15 +186,18 @@ class AnswersView(ViewBase):
             return
         shown = self.grid.row_count
         suspect = int(self.index.suspect().sum())
+        fallback = int(self.index.fallback().sum())
         marked = len(self.grid.marks)
         parts = [f"{shown:,} of {self.index.size:,} answers"]
         if suspect:
             parts.append(f"{suspect:,} suspect languages (m)")
+        if fallback:
+            parts.append(f"{fallback:,} by fallback (b)")
         if marked:
             parts.append(f"{marked} marked")
         if self.query_state.order == "confidence":
             parts.append("lowest confidence first")
-        self.query_one("#answers-count", Static).update(" · ".join(parts))
+        self.query_one("#answers-count", Static).update(" · ".join(parts), layout=False)
 
     def apply_query(self, query: AnswerQuery) -> None:
         self.query_state = query
@@ -199,12 +214,12 @@ class AnswersView(ViewBase):
 
     @on(Input.Submitted, "#answer-search")
     def _search_done(self) -> None:
-        self.grid.focus()
+        self.focus_now(self.grid)
 
     def on_key(self, event: Key) -> None:
         if event.key == "escape" and self.query_one("#answer-search", Input).has_focus:
             event.stop()
-            self.grid.focus()
+            self.focus_now(self.grid)
 
     @on(Select.Changed)
     def _select_changed(self, event: Select.Changed) -> None:
@@ -220,18 +235,24 @@ class AnswersView(ViewBase):
         self.apply_query(_with(self.query_state, **{field: value}))
 
     def action_search(self) -> None:
-        self.query_one("#answer-search", Input).focus()
+        self.focus_now(self.query_one("#answer-search", Input))
 
     def action_filters(self) -> None:
-        self.query_one("#filter-language", Select).focus()
+        self.focus_now(self.query_one("#filter-language", Select))
 
     def action_suspects(self) -> None:
-        suspect = self.query_state.flag != SUSPECT
-        query = _with(self.query_state, flag=SUSPECT if suspect else "", order="confidence" if suspect else "input")
+        self._toggle_flag(SUSPECT)
+
+    def action_fallbacks(self) -> None:
+        self._toggle_flag(FALLBACK)
+
+    def _toggle_flag(self, flag: str) -> None:
+        on = self.query_state.flag != flag
+        query = _with(self.query_state, flag=flag if on else "", order="confidence" if on else "input")
         with self.prevent(Select.Changed):
-            self.query_one("#filter-flag", Select).value = SUSPECT if suspect else BLANK
+            self.query_one("#filter-flag", Select).value = flag if on else BLANK
         self.apply_query(query)
-        self.grid.focus()
+        self.focus_now(self.grid)
 
     def action_clear_filters(self) -> None:
         with self.prevent(Select.Changed, Input.Changed):
@@ -268,8 +289,10 @@ class AnswersView(ViewBase):
         if session is None or not targets:
             return
         row = self.grid.current_row() or {}
-        choices = [(code, code) for code in session.study.languages.expected] + [("und", "und (undetermined)")]
+        choices = [(code, f"{code:<4}{language_name(code)}") for code in session.study.languages.expected]
+        choices.append(("und", "und undetermined"))
         title = f"Language of {len(targets)} marked answers" if len(targets) > 1 else f"Language of {targets[0]}"
+        detail = "" if len(targets) > 1 else str(row.get(C.CLEAN_TEXT) or row.get(C.RAW_TEXT) or "")[:300]
 
         def chosen(code: str | None) -> None:
             if code is None:
@@ -284,7 +307,7 @@ class AnswersView(ViewBase):
             self._count()
             self.notify(f"{len(targets)} answer{'s' if len(targets) > 1 else ''} set to {code}", timeout=3)
 
-        self.app.push_screen(ChoiceScreen(title, choices, str(row.get(C.LANGUAGE, ""))), chosen)
+        self.app.push_screen(ChoiceScreen(title, choices, str(row.get(C.LANGUAGE, "")), detail), chosen)
 
     def _is_non_answer(self, key: str, row: dict[str, Any]) -> bool:
         decided = self.termloom.active_decisions().non_answer.get(key)

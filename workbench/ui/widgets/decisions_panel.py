@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import pandas as pd
-from rich.text import Text
 from textual.app import ComposeResult
 from textual.containers import Vertical
 from textual.widgets import Static
@@ -30,10 +29,9 @@ def describe(decision: Decision) -> str:
     return f"{decision.kind} {decision.target} = {decision.value}{lang}"
 
 
-def _state(value: object) -> Text:
+def _state(value: object) -> tuple[str, str]:
     state = str(value)
-    style = {"active": "", "undone": "dim italic", "dropped": "dim strike"}.get(state, "")
-    return Text(state, style=style)
+    return state, {"active": "", "undone": "dim italic", "dropped": "dim strike"}.get(state, "")
 
 
 class DecisionsPanel(Vertical):

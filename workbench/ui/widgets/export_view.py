@@ -100,7 +100,7 @@ class ExportView(ViewBase):
         self.query_one("#export-folder", Input).value = default_folder(session)
 
     def action_focus_folder(self) -> None:
-        self.query_one("#export-folder", Input).focus()
+        self.focus_now(self.query_one("#export-folder", Input))
 
     def action_all_formats(self) -> None:
         self.query_one("#export-formats", SelectionList).select_all()

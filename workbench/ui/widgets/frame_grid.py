@@ -15,7 +15,7 @@ from typing import Any, ClassVar, Literal
 
 import numpy as np
 import pandas as pd
-from rich.cells import cell_len
+from rich.cells import cell_len, set_cell_size
 from rich.segment import Segment
 from rich.style import Style
 from rich.text import Text
@@ -27,8 +27,12 @@ from textual.reactive import reactive
 from textual.scroll_view import ScrollView
 from textual.strip import Strip
 
-#: Turns a cell value into text; may return a ``rich.text.Text`` to colour parts of it.
-Formatter = Callable[[Any], "str | Text"]
+from workbench.ui.stray_keys import mark_origin
+
+#: Turns a cell value into text: a ``str``, a ``(str, style)`` pair to colour the
+#: whole cell, or a ``rich.text.Text`` to colour parts of it (slower; use sparingly).
+Formatter = Callable[[Any], "str | tuple[str, str] | Text"]
+_FLAT = str.maketrans({"\n": " ", "\t": " ", "\r": " "})
 
 
 @dataclass(frozen=True)
@@ -132,6 +136,7 @@ class FrameGrid(ScrollView, can_focus=True):
         #: ``key -> {column: value}`` shown instead of the table's values (pending decisions).
         self.overlay: dict[Any, dict[str, Any]] = {}
         self.marks: set[Any] = set()
+        self._styles: dict[str, Style] = {}
 
     # ------------------------------------------------------------------ data
 
@@ -155,13 +160,35 @@ class FrameGrid(ScrollView, can_focus=True):
     def set_positions(self, positions: np.ndarray, keep: Any = None) -> None:
         """Change which rows are shown without touching the table (a filter keystroke)."""
         self._positions = np.asarray(positions, dtype=np.int64)
-        self.virtual_size = Size(self.size.width, self.row_count + 1)
+        self._set_virtual_height(self.row_count + 1)
         target = 0
         if keep is not None and self.row_count:
             hits = np.flatnonzero(self._keys[self._positions] == keep)
-            target = int(hits[0]) if len(hits) else 0
+            # A row that left the view (e.g. decided, so no longer suspect) leaves the
+            # cursor where it was: on the next row, as when reviewing a list.
+            target = int(hits[0]) if len(hits) else self.cursor_row
         self.cursor_row = target
         self.refresh()
+
+    def _set_virtual_height(self, height: int) -> None:
+        """Resize the scrollable area; a full screen layout only when the scrollbar appears or goes.
+
+        Assigning ``virtual_size`` always re-lays out the whole screen, which
+        costs more than filtering 100,000 rows; when the scrollbar stays as it
+        is, only the scrollbar and this widget need redrawing.
+        """
+        size = Size(self.size.width, height)
+        if size == self.virtual_size:
+            return
+        view = self.size.height
+        needs_bar_before = self.virtual_size.height > view
+        needs_bar_after = height > view
+        if not self.is_mounted or needs_bar_before != needs_bar_after:
+            self.virtual_size = size
+            return
+        self.set_reactive(FrameGrid.virtual_size, size)
+        self._scroll_update(size)
+        self.scroll_y = self.validate_scroll_y(self.scroll_y)
 
     def current_key(self) -> Any:
         if not self.row_count:
@@ -220,6 +247,9 @@ class FrameGrid(ScrollView, can_focus=True):
         if self.row_count:
             self.post_message(self.Chosen(self, self.current_key()))
 
+    def on_key(self, event: events.Key) -> None:
+        mark_origin(self, event)
+
     def on_click(self, event: events.Click) -> None:
         row = int(self.scroll_offset.y) + event.y - 1
         if event.y >= 1 and 0 <= row < self.row_count:
@@ -228,7 +258,7 @@ class FrameGrid(ScrollView, can_focus=True):
                 self.action_choose()
 
     def on_resize(self, event: events.Resize) -> None:
-        self.virtual_size = Size(self.size.width, self.row_count + 1)
+        self.virtual_size = Size(self.size.width, self.row_count + 1)  # the size changed: a layout is due anyway
         self._scroll_cursor_into_view()
 
     # ------------------------------------------------------------------ drawing
@@ -242,16 +272,33 @@ class FrameGrid(ScrollView, can_focus=True):
         return [c.width if c.width is not None else share for c in self.columns]
 
     @staticmethod
-    def _fit(text: Text, width: int, align: str) -> Text:
-        text = text.copy()
-        text.truncate(width, overflow="ellipsis")
-        pad = width - cell_len(text.plain)
-        if pad > 0:
+    def _fit(text: str, width: int, align: str) -> str:
+        """``text`` cut (with an ellipsis) or padded to exactly ``width`` cells."""
+        size = cell_len(text)
+        if size > width:
+            return set_cell_size(text, max(0, width - 1)) + "…" if width > 0 else ""
+        pad = " " * (width - size)
+        return pad + text if align == "right" else text + pad
+
+    def _style(self, name: str) -> Style:
+        style = self._styles.get(name)
+        if style is None:
+            style = self._styles[name] = Style.parse(name)
+        return style
+
+    def _cell(self, shown: str | tuple[str, str] | Text, width: int, align: str, base: Style) -> list[Segment]:
+        if isinstance(shown, Text):
+            text = shown.copy()
+            text.plain = text.plain.translate(_FLAT)
+            text.truncate(width, overflow="ellipsis", pad=True)
             if align == "right":
-                text = Text(" " * pad) + text
-            else:
-                text.append(" " * pad)
-        return text
+                text.rstrip()
+                text = Text(" " * (width - cell_len(text.plain))) + text
+            return [Segment(t, base + st if st else base) for t, st, _ in text.render(self.app.console, end="")]
+        if isinstance(shown, tuple):
+            text, style = shown
+            return [Segment(self._fit(str(text).translate(_FLAT), width, align), base + self._style(style) if style else base)]
+        return [Segment(self._fit(str(shown).translate(_FLAT), width, align), base)]
 
     def render_line(self, y: int) -> Strip:
         width = self.size.width
@@ -267,11 +314,10 @@ class FrameGrid(ScrollView, can_focus=True):
 
     def _header(self, width: int) -> Strip:
         style = self.get_component_rich_style("frame-grid--header")
-        line = Text(" ", style=style)
+        segments = [Segment(" ", style)]
         for column, size in zip(self.columns, self._widths(width), strict=True):
-            line.append_text(self._fit(Text(column.label), size, column.align))
-            line.append(" ")
-        return self._strip(line, width, style)
+            segments.append(Segment(self._fit(column.label, size, column.align) + " ", style))
+        return Strip(segments).adjust_cell_length(width, style)
 
     def _row(self, index: int, width: int) -> Strip:
         position = int(self._positions[index])
@@ -280,9 +326,9 @@ class FrameGrid(ScrollView, can_focus=True):
         base = self.rich_style
         if index == self.cursor_row:
             base = base + self.get_component_rich_style("frame-grid--cursor")
-        mark = Text("▸" if key in self.marks else " ", style=self.get_component_rich_style("frame-grid--mark"))
-        line = Text(style=base)
-        line.append_text(mark)
+        marked = key in self.marks
+        segments = [Segment("▸" if marked else " ", base + self.get_component_rich_style("frame-grid--mark") if marked else base)]
+        gap = Segment(" ", base)
         for column, size in zip(self.columns, self._widths(width), strict=True):
             if column.key in overlay:
                 value = overlay[column.key]
@@ -290,13 +336,6 @@ class FrameGrid(ScrollView, can_focus=True):
                 data = self._data.get(column.key)
                 value = data[position] if data is not None else None
             shown = column.format(value) if column.format else _plain(value)
-            cell = shown if isinstance(shown, Text) else Text(str(shown))
-            cell.plain = cell.plain.replace("\n", " ").replace("\t", " ").replace("\r", " ")
-            line.append_text(self._fit(cell, size, column.align))
-            line.append(" ")
-        return self._strip(line, width, base)
-
-    def _strip(self, line: Text, width: int, style: Style) -> Strip:
-        # Rich leaves plain runs unstyled (style None); Textual's NO_COLOR filter needs a style on every segment.
-        segments = [Segment(text, seg_style or style) for text, seg_style, _ in line.render(self.app.console, end="")]
-        return Strip(segments).adjust_cell_length(width, style)
+            segments.extend(self._cell(shown, size, column.align, base))
+            segments.append(gap)
+        return Strip(segments).adjust_cell_length(width, base)

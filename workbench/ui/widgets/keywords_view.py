@@ -12,7 +12,6 @@ from typing import Any, ClassVar
 
 import numpy as np
 import pandas as pd
-from rich.text import Text
 from textual import on, work
 from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
@@ -72,11 +71,11 @@ def _p(value: Any) -> str:
     return "<0.001" if number < 0.001 else f"{number:.3f}"
 
 
-def _bar(value: Any) -> Text:
+def _bar(value: Any) -> tuple[str, str]:
     text = str(value or "")
     if text.startswith("-"):
-        return Text(text[1:], style="red")
-    return Text(text, style="green")
+        return text[1:], "red"
+    return text, "green"
 
 
 TOP_GRID = [
@@ -343,7 +342,7 @@ class KeywordsView(ViewBase):
         self._cycle("#kw-ranking", 1)
 
     def action_filters(self) -> None:
-        self.query_one("#kw-mode", Select).focus()
+        self.focus_now(self.query_one("#kw-mode", Select))
 
     def action_kwic(self) -> None:
         outputs = self.outputs
@@ -369,4 +368,4 @@ class KeywordsView(ViewBase):
 
     def action_close_kwic(self) -> None:
         self.query_one(KwicPanel).hide()
-        self.grid.focus()
+        self.focus_now(self.grid)

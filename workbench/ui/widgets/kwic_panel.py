@@ -11,7 +11,6 @@ import traceback
 from typing import Any
 
 import pandas as pd
-from rich.text import Text
 from textual import work
 from textual.app import ComposeResult
 from textual.containers import Vertical
@@ -22,12 +21,12 @@ from workbench.core.pipeline import RunOutputs
 from workbench.ui.widgets.frame_grid import FrameGrid, GridColumn
 
 
-def _left(value: Any) -> Text:
-    return Text("" if value is None else str(value), style="dim")
+def _left(value: Any) -> tuple[str, str]:
+    return ("" if value is None else str(value)), "dim"
 
 
-def _hit(value: Any) -> Text:
-    return Text("" if value is None else str(value), style="bold reverse")
+def _hit(value: Any) -> tuple[str, str]:
+    return ("" if value is None else str(value)), "bold reverse"
 
 
 class KwicPanel(Vertical):

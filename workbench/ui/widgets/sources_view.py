@@ -53,9 +53,9 @@ def _width(values: pd.Series, name: str, widest: int = 16) -> int:
     return max(2, min(widest, max(len(name), longest)))
 
 
-def _role_cell(value: object) -> Text:
+def _role_cell(value: object) -> tuple[str, str]:
     role = str(value or "")
-    return Text(role or "·", style=ROLE_STYLE.get(role, "dim"))
+    return role or "·", ROLE_STYLE.get(role, "dim")
 
 
 class SourcesView(ViewBase):
@@ -223,7 +223,7 @@ class SourcesView(ViewBase):
         self._show_preview()
 
     def action_focus_preview(self) -> None:
-        self.query_one("#preview-grid", FrameGrid).focus()
+        self.focus_now(self.query_one("#preview-grid", FrameGrid))
 
     def action_save_roles(self) -> None:
         session = self.session

@@ -10,7 +10,6 @@ from typing import Any, ClassVar
 
 import numpy as np
 import pandas as pd
-from rich.text import Text
 from textual import on
 from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
@@ -47,8 +46,8 @@ def terms_frame(vocabulary: pd.DataFrame | None, stop_hits: pd.DataFrame | None)
     return frame.sort_values(["tf", "term"], ascending=[False, True], kind="stable").reset_index(drop=True)
 
 
-def _stop(value: Any) -> Text:
-    return Text("stop", style="red") if bool(value) else Text("")
+def _stop(value: Any) -> tuple[str, str]:
+    return ("stop", "red") if bool(value) else ("", "")
 
 
 def _count(value: Any) -> str:
@@ -155,7 +154,7 @@ class TermsView(ViewBase):
         parts = [f"{int(mask.sum()):,} of {len(frame):,} terms in {self.language}", f"{stops:,} stop words"]
         if self.marked:
             parts.append(f"marked '{self.marked}': M merges it into the term under the cursor")
-        self.query_one("#terms-count", Static).update(" · ".join(parts))
+        self.query_one("#terms-count", Static).update(" · ".join(parts), layout=False)
 
     # ------------------------------------------------------------------ filters
 
@@ -166,12 +165,12 @@ class TermsView(ViewBase):
 
     @on(Input.Submitted, "#terms-search")
     def _search_done(self) -> None:
-        self.grid.focus()
+        self.focus_now(self.grid)
 
     def on_key(self, event: Key) -> None:
         if event.key == "escape" and self.query_one("#terms-search", Input).has_focus:
             event.stop()
-            self.grid.focus()
+            self.focus_now(self.grid)
 
     @on(Select.Changed, "#terms-language")
     def _language_chosen(self, event: Select.Changed) -> None:
@@ -186,7 +185,7 @@ class TermsView(ViewBase):
         self._show()
 
     def action_search(self) -> None:
-        self.query_one("#terms-search", Input).focus()
+        self.focus_now(self.query_one("#terms-search", Input))
 
     def action_language(self, step: int) -> None:
         languages = sorted(self.frames)
@@ -271,4 +270,4 @@ class TermsView(ViewBase):
 
     def action_close_kwic(self) -> None:
         self.query_one(KwicPanel).hide()
-        self.grid.focus()
+        self.focus_now(self.grid)

@@ -34,6 +34,11 @@ class ViewBase(Vertical):
     def decisions_changed(self, session: Session) -> None:
         """Decisions were undone or redone (results follow after recomputation)."""
 
+    def focus_now(self, widget: Widget) -> None:
+        """Move the focus at once (``Widget.focus`` waits for the message queue, so keys
+        typed right after a view switch or ``/`` would still reach the old widget)."""
+        self.screen.set_focus(widget)
+
     def main_widget(self) -> Widget | None:
         """The widget that takes the focus when the view is shown."""
         return None
