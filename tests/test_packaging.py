@@ -38,3 +38,19 @@ def test_wheel_contains_profiles_demo_and_entry_point(tmp_path: Path) -> None:
     modules = {str(p.relative_to(ROOT)) for p in (ROOT / "workbench").rglob("*.py")}
     missing = sorted(m for m in modules if m not in names)
     assert not missing, f"modules missing from the wheel (add their package to pyproject.toml): {missing}"
+
+    # The installed layout (namespace data packages) must find its profiles
+    # and demo study without the checkout beside it.
+    site = tmp_path / "site"
+    with zipfile.ZipFile(wheel) as archive:
+        archive.extractall(site)
+    probe = (
+        "from workbench.core.profiles import profiles_root, load_profile\n"
+        "root = profiles_root()\n"
+        "assert 'site' in str(root) and root.is_dir(), root\n"
+        "print(load_profile('de').name)\n"
+    )
+    env = {"PYTHONPATH": str(site), "PATH": ""}
+    result = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, cwd=tmp_path, env=env)
+    assert result.returncode == 0, result.stderr[-2000:]
+    assert result.stdout.strip() == "German"

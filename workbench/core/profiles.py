@@ -22,7 +22,7 @@ from __future__ import annotations
 import functools
 import tomllib
 from dataclasses import dataclass, field
-from importlib import resources
+import importlib.util
 from pathlib import Path
 from typing import Literal
 
@@ -56,7 +56,12 @@ def profiles_root() -> Path:
     checkout = Path(__file__).resolve().parents[2] / "lang_profiles"
     if checkout.is_dir():
         return checkout
-    return Path(str(resources.files("workbench.lang_profiles")))
+    # Installed, the folder is a namespace package (no __init__.py), whose
+    # resources.files() is a MultiplexedPath; its search location is the folder.
+    spec = importlib.util.find_spec("workbench.lang_profiles")
+    if spec is None or not spec.submodule_search_locations:
+        raise SettingsError("the language profiles are missing from this installation; reinstall termloom")
+    return Path(next(iter(spec.submodule_search_locations)))
 
 
 def available_languages(root: Path | None = None) -> list[str]:
