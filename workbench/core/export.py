@@ -138,8 +138,9 @@ def safe_name(text: object, used: set[str] | None = None, max_bytes: int = _NAME
     name = "".join(ch if ch.isalnum() or ch in "._+-" else "-" for ch in name)
     # Any run of dots and dashes holding a dash, and any run of 2+ dots, becomes one dash: no "..".
     name = re.sub(r"[-.]*-[-.]*|\.{2,}", "-", name).strip("-._") or "x"
-    if name.split(".")[0].lower() in _WINDOWS_RESERVED:
-        name += "_"
+    stem, dot, rest = name.partition(".")
+    if stem.lower() in _WINDOWS_RESERVED:  # "CON.txt" is CON too, so the mark goes on the stem
+        name = f"{stem}_{dot}{rest}"
     name = _cut_bytes(name, max_bytes)
     if used is None:
         return name
