@@ -364,7 +364,10 @@ def _raise_bad_line(index_path: Path, text: str) -> None:
 
 _SKIP_LINE = re.compile(r"^\s*(see:|synonyms?:|note:|antonyms?:|\")", re.IGNORECASE)
 _NUMBERING = re.compile(r"^\s*\d+\.\s*")
-_BRACKETS = re.compile(r"\[[^\]]*\]|<[^>]*>|\([^)]*\)|\{[^}]*\}|/[^/\n]*/")
+# An annotation holds no bracket of its own kind: with "[^\]]*" a line of 100,000 "[" took 100 s
+# (every "[" scanned to the end of the line); this form is linear and gives the same result on the
+# 147,761 entry lines of the first 20,000 headwords of FreeDict deu-eng and spa-eng (tests/bench/bench_regex.py).
+_BRACKETS = re.compile(r"\[[^\[\]]*\]|<[^<>]*>|\([^()]*\)|\{[^{}]*\}|/[^/\n]*/")
 
 
 def parse_translations(entry: str, language: str = "") -> list[str]:
