@@ -22,6 +22,7 @@ from __future__ import annotations
 import csv
 import json
 import os
+import sys
 import tempfile
 from pathlib import Path
 
@@ -36,7 +37,11 @@ from workbench.core.settings import study_from_dict
 
 THOROUGH = os.environ.get("HYPOTHESIS_PROFILE") == "thorough"
 #: Longest generated token; the thorough profile goes further.
-LONG = 20_000 if THOROUGH else 3_000
+LONG = 6_000 if THOROUGH else 3_000
+#: Examples run so far in this process; the thorough profile reports every PROGRESS_EVERY of them
+#: on the real stderr (pytest captures the test's own), since a run takes hours.
+_RUN = [0]
+PROGRESS_EVERY = 250
 
 WORDS = [
     "train", "late", "coffee", "staff", "friendly", "price", "the", "was", "and", "not",
@@ -121,6 +126,9 @@ def is_answer(text: str) -> bool:
 @settings(suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
 @given(layout=layouts(), chosen=study_settings())
 def test_stages_account_for_every_row_and_answer(layout: dict, chosen: dict) -> None:
+    _RUN[0] += 1
+    if THOROUGH and _RUN[0] % PROGRESS_EVERY == 0:
+        print(f"[properties] {_RUN[0]:,} examples run", file=sys.__stderr__, flush=True)
     with tempfile.TemporaryDirectory() as folder:
         source = write_source(Path(folder), layout)
         columns = {"text": layout["texts"]}
