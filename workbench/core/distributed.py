@@ -134,6 +134,8 @@ MIN_PARTITION = 1000
 PARTITIONS_PER_WORKER = 4
 #: Seconds to wait for the first worker of an external scheduler.
 WORKER_WAIT = 60
+#: How long to keep trying to reach an external scheduler.
+CONNECT_TIMEOUT = "20s"
 _INSTALL = 'engine.kind = "dask" needs Dask; install it with: pip install "termloom[dask]"'
 
 
@@ -250,7 +252,8 @@ def _local_cluster(engine: Engine, distributed: Any) -> Any:
         threads_per_worker=1,
         processes=True,
         host="127.0.0.1",
-        dashboard_address=None,
+        # The scheduler always serves HTTP (health, metrics); a free loopback port, never 8787 taken by another run.
+        dashboard_address="127.0.0.1:0",
         silence_logs=logging.ERROR,
     )
 
@@ -273,7 +276,7 @@ def dask_mapper(engine: Engine) -> Iterator[DaskMapper]:
         if engine.scheduler:
             address = engine.scheduler if "://" in engine.scheduler else f"tcp://{engine.scheduler}"
             try:
-                client = distributed.Client(address, timeout="20s", set_as_default=False)
+                client = distributed.Client(address, timeout=CONNECT_TIMEOUT, set_as_default=False)
             except (OSError, TimeoutError) as exc:
                 raise EngineError(
                     f"no Dask scheduler answers at {engine.scheduler} ({exc}); start one with 'dask scheduler' "
