@@ -16,6 +16,7 @@ import tomllib
 from pathlib import Path
 
 import pytest
+from textual import events
 
 from workbench.core.decisions import DecisionStore
 from workbench.ui.app import TermloomApp
@@ -229,6 +230,35 @@ async def test_non_answer_and_exclude_toggle(study: Path) -> None:
         answers = app.session.outputs.answers.set_index("answer_id")
         assert answers.loc[first, "enters_weighting"]
         assert "non_answer" not in list(answers.loc[first, "flags"])
+
+
+async def test_keys_typed_in_a_burst_land_where_meant(study: Path) -> None:
+    """Keys read faster than handled (a paste, a busy moment) keep their order and target.
+
+    The keys are queued all at once, before any is handled: switching view,
+    then ``/`` and a word, then leaving the box and pressing a table key.
+    """
+    app = TermloomApp(study, debounce=0)
+    async with app.run_test(size=(120, 40)) as pilot:
+        await _open(app, pilot)
+
+        def burst(*keys: tuple[str, str | None]) -> None:
+            for key, character in keys:
+                app.post_message(events.Key(key, character))
+
+        burst(("3", "3"), ("slash", "/"), ("s", "s"), ("t", "t"), ("a", "a"), ("enter", "\r"), ("right_square_bracket", "]"))
+        for _ in range(5):  # each key hops through a few message queues
+            await pilot.pause()
+        assert app.workbench.query_one("#terms-search").value == "sta"
+        assert app.focused is _grid(app, "terms-grid")
+        assert app.workbench.view("terms").language == "en"
+        burst(("2", "2"), ("slash", "/"), ("p", "p"), ("r", "r"), ("i", "i"), ("escape", None), ("m", "m"))
+        for _ in range(5):  # each key hops through a few message queues
+            await pilot.pause()
+        answers = app.workbench.view("answers")
+        assert answers.query_state.text == "pri"
+        assert answers.query_state.flag == "suspect language"
+        assert app.focused is _grid(app, "answers-grid")
 
 
 async def test_full_text_opens_and_closes(study: Path) -> None:

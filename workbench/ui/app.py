@@ -22,6 +22,7 @@ from textual.binding import Binding, BindingType
 from textual.css.query import NoMatches
 from textual.message import Message
 from textual.timer import Timer
+from textual.widgets import Input
 from textual.worker import WorkerCancelled, WorkerFailed
 
 from workbench.core.decisions import Decisions, Kind
@@ -60,11 +61,15 @@ class TermloomApp(App[int]):
     COMMANDS = App.COMMANDS | {ActionCommands}
 
     BINDINGS: ClassVar[list[BindingType]] = [
-        Binding("1", "show_view('sources')", "Sources", show=False, tooltip="Show the Sources view"),
-        Binding("2", "show_view('answers')", "Answers", show=False, tooltip="Show the Answers view"),
-        Binding("3", "show_view('terms')", "Terms", show=False, tooltip="Show the Terms view"),
-        Binding("4", "show_view('keywords')", "Keywords", show=False, tooltip="Show the Keywords view"),
-        Binding("5", "show_view('export')", "Export", show=False, tooltip="Show the Export view"),
+        # Keys that move the focus are priority bindings: the app runs them the moment
+        # it reads them, so the keys typed right after already go to the new place.
+        Binding("1", "show_view('sources')", "Sources", show=False, priority=True, tooltip="Show the Sources view"),
+        Binding("2", "show_view('answers')", "Answers", show=False, priority=True, tooltip="Show the Answers view"),
+        Binding("3", "show_view('terms')", "Terms", show=False, priority=True, tooltip="Show the Terms view"),
+        Binding("4", "show_view('keywords')", "Keywords", show=False, priority=True, tooltip="Show the Keywords view"),
+        Binding("5", "show_view('export')", "Export", show=False, priority=True, tooltip="Show the Export view"),
+        Binding("slash", "search", "Search", priority=True, tooltip="Search (Answers and Terms views)"),
+        Binding("enter,escape", "leave_search", "Back to the table", show=False, priority=True, tooltip="Leave the search box (the filter stays)"),
         Binding("d", "toggle_decisions", "Decisions", tooltip="Show / hide the decisions panel"),
         Binding("ctrl+z", "undo", "Undo", tooltip="Undo the last decision"),
         Binding("ctrl+y", "redo", "Redo", tooltip="Redo the last undone decision"),
@@ -353,7 +358,26 @@ class TermloomApp(App[int]):
     def check_action(self, action: str, parameters: tuple[object, ...]) -> bool | None:
         if action == "cancel_work":
             return self._reporter is not None
+        on_workbench = self.screen is getattr(self, "_workbench", None)
+        typing = isinstance(self.focused, Input)
+        if action == "show_view":
+            return on_workbench and not typing
+        if action == "search":
+            return on_workbench and not typing and self.workbench.current_view().search_box() is not None
+        if action == "leave_search":
+            return on_workbench and typing and self.focused is self.workbench.current_view().search_box()
         return True
+
+    def action_search(self) -> None:
+        view = self.workbench.current_view()
+        box = view.search_box()
+        if box is not None:
+            self.workbench.set_focus(box)
+
+    def action_leave_search(self) -> None:
+        target = self.workbench.current_view().main_widget()
+        if target is not None:
+            self.workbench.set_focus(target)
 
     async def wait_until_idle(self) -> None:
         """Wait until no computation or export runs or is scheduled, nor any other worker (tests, benchmarks).

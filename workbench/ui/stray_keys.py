@@ -30,8 +30,10 @@ def mark_origin(widget: Widget, event: events.Key) -> None:
 def reroute_stray_key(app: App[object], event: events.Key) -> bool:
     """Hand ``event`` to the focused widget if its table lost the focus meanwhile; ``True`` if it did."""
     origin = getattr(event, _ORIGIN, None)
+    if origin is None or not app.screen_stack:  # not from a table, or the app is closing
+        return False
     target = app.focused
-    if origin is None or target is None or target is origin:
+    if target is None or target is origin:
         return False
     event.stop()
     event.prevent_default()

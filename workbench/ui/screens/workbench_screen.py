@@ -50,6 +50,10 @@ class WorkbenchScreen(Screen[None]):
     def view(self, view_id: str) -> ViewBase:
         return self.query_one(f"#view-{view_id}", ViewBase)
 
+    def current_view(self) -> ViewBase:
+        active = self.query_one(TabbedContent).active or "tab-answers"
+        return self.view(active.removeprefix("tab-"))
+
     def show_view(self, view_id: str) -> ViewBase:
         self.query_one(TabbedContent).active = f"tab-{view_id}"
         view = self.view(view_id)

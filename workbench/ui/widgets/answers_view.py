@@ -9,12 +9,13 @@ from __future__ import annotations
 
 from typing import Any, ClassVar
 
+import numpy as np
+
 from rich.text import Text
 from textual import on
 from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
 from textual.containers import Horizontal
-from textual.events import Key
 from textual.widget import Widget
 from textual.widgets import Input, Select, Static
 
@@ -97,7 +98,6 @@ class AnswersView(ViewBase):
     TITLE = "Answers"
 
     BINDINGS: ClassVar[list[BindingType]] = [
-        Binding("slash", "search", "Search", tooltip="Search the answer texts"),
         Binding("m", "suspects", "Suspects", tooltip="Show answers whose detected language looks wrong, least sure first (toggle)"),
         Binding("b", "fallbacks", "By fallback", show=False, tooltip="Show answers labelled by the hint / default language, not the detector (toggle)"),
         Binding("l", "set_language", "Language", tooltip="Set the language of the marked answers, or of this one"),
@@ -133,6 +133,9 @@ class AnswersView(ViewBase):
     def main_widget(self) -> Widget | None:
         return self.grid
 
+    def search_box(self) -> Widget | None:
+        return self.query_one("#answer-search", Input)
+
     # ------------------------------------------------------------------ data
 
     def outputs_changed(self, session: Session) -> None:
@@ -145,11 +148,29 @@ class AnswersView(ViewBase):
         answers["_state"] = self._states(answers, excluded)
         if C.CLEAN_TEXT not in answers:
             answers[C.CLEAN_TEXT] = answers[C.RAW_TEXT]
+        shown = self._shown_ids()
         self.index = AnswerIndex(answers, session.study.identify.min_confidence, excluded)
         self.grid.overlay.clear()
         self._fill_choices()
-        self.grid.set_frame(self.index.frame, self.index.select(self.query_state))
+        self.grid.set_frame(self.index.frame, self._stable(self.index.select(self.query_state), shown))
         self._count()
+
+    def _shown_ids(self) -> list[str]:
+        if self.index is None or not self.grid.row_count:
+            return []
+        return [str(v) for v in self.index.ids[self.grid._positions]]  # noqa: SLF001 - the rows on screen
+
+    def _stable(self, matches: np.ndarray, shown: list[str]) -> np.ndarray:
+        """New results keep the rows on screen in place (a decided answer no longer suspect stays
+        until the filter changes), so the row under the cursor never shifts while reviewing;
+        new matches come after them."""
+        assert self.index is not None
+        if not shown:
+            return matches
+        kept = [p for p in (self.index.position(i) for i in shown) if p is not None]
+        seen = set(kept)
+        extra = [int(p) for p in matches if int(p) not in seen]
+        return np.asarray(kept + extra, dtype=np.int64)
 
     @staticmethod
     def _states(answers: Any, excluded: set[str]) -> list[str]:
@@ -212,15 +233,6 @@ class AnswersView(ViewBase):
     def _search_changed(self, event: Input.Changed) -> None:
         self.apply_query(_with(self.query_state, text=event.value))
 
-    @on(Input.Submitted, "#answer-search")
-    def _search_done(self) -> None:
-        self.focus_now(self.grid)
-
-    def on_key(self, event: Key) -> None:
-        if event.key == "escape" and self.query_one("#answer-search", Input).has_focus:
-            event.stop()
-            self.focus_now(self.grid)
-
     @on(Select.Changed)
     def _select_changed(self, event: Select.Changed) -> None:
         field = {
@@ -233,9 +245,6 @@ class AnswersView(ViewBase):
             return
         value = "" if event.value is BLANK else str(event.value)
         self.apply_query(_with(self.query_state, **{field: value}))
-
-    def action_search(self) -> None:
-        self.focus_now(self.query_one("#answer-search", Input))
 
     def action_filters(self) -> None:
         self.focus_now(self.query_one("#filter-language", Select))

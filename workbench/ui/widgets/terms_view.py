@@ -14,7 +14,6 @@ from textual import on
 from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
 from textual.containers import Horizontal, Vertical
-from textual.events import Key
 from textual.widget import Widget
 from textual.widgets import Input, Select, Static
 
@@ -66,7 +65,6 @@ class TermsView(ViewBase):
         Binding("space", "mark", "Mark", show=False, tooltip="Mark a term to merge into another"),
         Binding("M", "merge", "Merge", tooltip="Merge the marked term into the term under the cursor"),
         Binding("k", "kwic", "In context", tooltip="Show the answers holding this term, in context"),
-        Binding("slash", "search", "Search", tooltip="Search the terms"),
         Binding("left_square_bracket", "language(-1)", "Prev lang", show=False, tooltip="Previous language"),
         Binding("right_square_bracket", "language(1)", "Next lang", tooltip="Next language"),
         Binding("v", "cycle_show", "Show", show=False, tooltip="Show all terms / content terms / stop words"),
@@ -113,6 +111,9 @@ class TermsView(ViewBase):
 
     def main_widget(self) -> Widget | None:
         return self.grid
+
+    def search_box(self) -> Widget | None:
+        return self.query_one("#terms-search", Input)
 
     # ------------------------------------------------------------------ data
 
@@ -163,15 +164,6 @@ class TermsView(ViewBase):
         self.search = event.value.strip()
         self._show()
 
-    @on(Input.Submitted, "#terms-search")
-    def _search_done(self) -> None:
-        self.focus_now(self.grid)
-
-    def on_key(self, event: Key) -> None:
-        if event.key == "escape" and self.query_one("#terms-search", Input).has_focus:
-            event.stop()
-            self.focus_now(self.grid)
-
     @on(Select.Changed, "#terms-language")
     def _language_chosen(self, event: Select.Changed) -> None:
         if event.value is not Select.NULL:
@@ -183,9 +175,6 @@ class TermsView(ViewBase):
     def _show_chosen(self, event: Select.Changed) -> None:
         self.show = str(event.value)
         self._show()
-
-    def action_search(self) -> None:
-        self.focus_now(self.query_one("#terms-search", Input))
 
     def action_language(self, step: int) -> None:
         languages = sorted(self.frames)

@@ -42,3 +42,7 @@ class ViewBase(Vertical):
     def main_widget(self) -> Widget | None:
         """The widget that takes the focus when the view is shown."""
         return None
+
+    def search_box(self) -> Widget | None:
+        """The view's search box, which ``/`` focuses, if it has one."""
+        return None
