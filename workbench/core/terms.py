@@ -629,10 +629,6 @@ def extract_terms(
     present = sorted(set(unique_langs.tolist()))
     mapper = mapper or LocalMapper()
     recipe = terms_recipe(study, profiles, decisions, present)
-    summary = mapper.call(terms_summary, recipe)
-    for lang, backend in summary.backends.items():
-        reporter.update(STAGE, 0, 0, f"{lang}: {backend}")
-
     # Items grouped by language (stable), so each termer gets long runs.
     order = np.argsort(unique_langs.astype(str), kind="stable") if len(uniques) else np.empty(0, dtype=np.int64)
     total = len(uniques)
@@ -650,6 +646,11 @@ def extract_terms(
             # every answer with this text, entering weighting or not
             overrides_applied[rule] += int(all_of_unique[i])
     del mapped
+    # After the map: its termers are built by then (in this process, or on a
+    # worker), so the summary costs no second build on the critical path.
+    summary = mapper.call(terms_summary, recipe)
+    for lang, backend in summary.backends.items():
+        reporter.update(STAGE, total, total, f"{lang}: {backend}")
 
     answers[TERMS] = [list(unique_terms[c]) for c in codes]  # type: ignore[arg-type]
 
