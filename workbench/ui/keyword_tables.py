@@ -69,7 +69,7 @@ def group_values(outputs: RunOutputs, grouping: str | None) -> list[str]:
     if sizes is None or sizes.empty:
         return []
     values = sizes.loc[sizes["grouping"].astype(str) == grouping, "group"].astype(str)
-    return list(dict.fromkeys(values))
+    return sorted(set(values))
 
 
 def keyword_scopes(outputs: RunOutputs) -> list[tuple[str, str]]:

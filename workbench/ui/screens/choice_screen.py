@@ -54,13 +54,20 @@ class ChoiceScreen(ModalScreen[str | None]):
         else:
             return
         event.stop()
-        values = [value for value, _ in self.choices]
-        match = next((i for i, v in enumerate(values) if v.lower().startswith(self.typed)), None)
+        match = self._find(self.typed)
         if match is None and event.character:
             self.typed = event.character.lower()
-            match = next((i for i, v in enumerate(values) if v.lower().startswith(self.typed)), None)
+            match = self._find(self.typed)
         if match is not None:
             self.query_one(OptionList).highlighted = match
+
+    def _find(self, typed: str) -> int | None:
+        """The first choice whose value, or else whose label, starts with ``typed``."""
+        for field in (0, 1):
+            for index, choice in enumerate(self.choices):
+                if choice[field].lower().startswith(typed):
+                    return index
+        return None
 
     def on_option_list_option_selected(self, event: OptionList.OptionSelected) -> None:
         self.dismiss(event.option.id)

@@ -44,6 +44,8 @@ class GridColumn:
     width: int | None = None
     align: Literal["left", "right"] = "left"
     format: Formatter | None = None
+    #: Which end of a too-long text to cut: the end (default) or the start (keeps the text nearest the right edge).
+    clip: Literal["end", "start"] = "end"
 
 
 def _plain(value: Any) -> str:
@@ -272,11 +274,18 @@ class FrameGrid(ScrollView, can_focus=True):
         return [c.width if c.width is not None else share for c in self.columns]
 
     @staticmethod
-    def _fit(text: str, width: int, align: str) -> str:
+    def _fit(text: str, width: int, align: str, clip: str = "end") -> str:
         """``text`` cut (with an ellipsis) or padded to exactly ``width`` cells."""
         size = cell_len(text)
         if size > width:
-            return set_cell_size(text, max(0, width - 1)) + "…" if width > 0 else ""
+            if width <= 0:
+                return ""
+            if clip == "start":
+                tail = text[-(width - 1):] if width > 1 else ""
+                while cell_len(tail) > width - 1:
+                    tail = tail[1:]
+                return ("…" + tail).rjust(width) if align == "right" else ("…" + tail).ljust(width)
+            return set_cell_size(text, max(0, width - 1)) + "…"
         pad = " " * (width - size)
         return pad + text if align == "right" else text + pad
 
@@ -286,7 +295,7 @@ class FrameGrid(ScrollView, can_focus=True):
             style = self._styles[name] = Style.parse(name)
         return style
 
-    def _cell(self, shown: str | tuple[str, str] | Text, width: int, align: str, base: Style) -> list[Segment]:
+    def _cell(self, shown: str | tuple[str, str] | Text, width: int, align: str, base: Style, clip: str = "end") -> list[Segment]:
         if isinstance(shown, Text):
             text = shown.copy()
             text.plain = text.plain.translate(_FLAT)
@@ -297,8 +306,8 @@ class FrameGrid(ScrollView, can_focus=True):
             return [Segment(t, base + st if st else base) for t, st, _ in text.render(self.app.console, end="")]
         if isinstance(shown, tuple):
             text, style = shown
-            return [Segment(self._fit(str(text).translate(_FLAT), width, align), base + self._style(style) if style else base)]
-        return [Segment(self._fit(str(shown).translate(_FLAT), width, align), base)]
+            return [Segment(self._fit(str(text).translate(_FLAT), width, align, clip), base + self._style(style) if style else base)]
+        return [Segment(self._fit(str(shown).translate(_FLAT), width, align, clip), base)]
 
     def render_line(self, y: int) -> Strip:
         width = self.size.width
@@ -336,6 +345,6 @@ class FrameGrid(ScrollView, can_focus=True):
                 data = self._data.get(column.key)
                 value = data[position] if data is not None else None
             shown = column.format(value) if column.format else _plain(value)
-            segments.extend(self._cell(shown, size, column.align, base))
+            segments.extend(self._cell(shown, size, column.align, base, column.clip))
             segments.append(gap)
         return Strip(segments).adjust_cell_length(width, base)

@@ -17,6 +17,7 @@ from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
 from textual.containers import Horizontal, Vertical
 from textual.widget import Widget
+from textual.timer import Timer
 from textual.widgets import Select, Static
 
 from workbench.core.counting import POOLED
@@ -25,12 +26,17 @@ from workbench.core.pipeline import RunOutputs
 from workbench.core.progress import Reporter
 from workbench.ui import keyword_tables as K
 from workbench.ui.bars import bar
+from workbench.ui.screens.choice_screen import ChoiceScreen
 from workbench.ui.session import Session
 from workbench.ui.widgets.frame_grid import FrameGrid, GridColumn
 from workbench.ui.widgets.kwic_panel import KwicPanel
 from workbench.ui.widgets.view_base import ViewBase
 
 MODE_TOP, MODE_COMPARE, MODE_CONCEPTS = "top keywords", "two groups", "languages side by side"
+#: Choice standing for "every other group" as group B.
+REST = "\x00rest"
+#: Seconds of quiet after choosing groups before the comparison runs.
+PAIR_DELAY = 0.4
 BAR_WIDTH = 12
 
 
@@ -110,8 +116,10 @@ class KeywordsView(ViewBase):
         Binding("g", "mode('concepts')", "Concepts", show=False, tooltip="Languages side by side through the glossary"),
         Binding("left_square_bracket", "scope(-1)", "Prev", show=False, tooltip="Previous language / group (group A when comparing)"),
         Binding("right_square_bracket", "scope(1)", "Next", tooltip="Next language / group (group A when comparing)"),
-        Binding("b", "other(1)", "Group B", show=False, tooltip="Next group B when comparing (the rest, then each group)"),
-        Binding("u", "unit(1)", "Unit", show=False, tooltip="Next language / pooled when comparing"),
+        Binding("a", "pick('a')", "Group A", tooltip="Choose group A when comparing"),
+        Binding("b", "pick('b')", "Group B", tooltip="Choose group B when comparing (or the rest)"),
+        Binding("G", "pick('grouping')", "Group column", show=False, tooltip="Choose the group column when comparing"),
+        Binding("u", "pick('unit')", "Unit", show=False, tooltip="Choose the language (or all languages) when comparing"),
         Binding("r", "ranking", "Ranking", show=False, tooltip="Switch between the two rankings of the list"),
         Binding("k", "kwic", "In context", tooltip="Show the answers holding this term, in context"),
         Binding("f", "filters", "Choices", show=False, tooltip="Go to the choices bar (Tab moves on)"),
@@ -129,7 +137,9 @@ class KeywordsView(ViewBase):
         self.unit: str | None = None
         #: (grouping, reference) -> tables of a compare run made on request; cleared by new results.
         self.pair_tables: dict[tuple[str, str], dict[str, pd.DataFrame]] = {}
-        self._pending: tuple[str, str] | None = None
+        self._want_pair: tuple[str, str] | None = None
+        self._pair_running = False
+        self._pair_timer: Timer | None = None
 
     def compose(self) -> ComposeResult:
         with Vertical(id="keywords-main"):
@@ -251,7 +261,11 @@ class KeywordsView(ViewBase):
             self.grid.set_frame(pd.DataFrame(columns=K.KEYNESS_COLUMNS + ["bar"]))
             legend.update(note)
             assert self.grouping is not None and self.group_b is not None
-            self._compute_pair(outputs, self.grouping, self.group_b)
+            self._want_pair = (self.grouping, self.group_b)
+            # Choosing groups one after the other should cost one comparison, not one per step.
+            if self._pair_timer is not None:
+                self._pair_timer.stop()
+            self._pair_timer = self.set_timer(PAIR_DELAY, self._start_pair)
             return
         top = float(frame["log_ratio"].abs().max()) if len(frame) else 0.0
         frame["bar"] = [
@@ -261,7 +275,19 @@ class KeywordsView(ViewBase):
         self.grid.set_frame(frame)
         legend.update(note)
 
-    @work(thread=True, exclusive=True, group="pair", exit_on_error=False)
+    def _start_pair(self) -> None:
+        """Run the comparison asked for last, unless one is already running (it starts the next when done)."""
+        self._pair_timer = None
+        outputs = self.outputs
+        if self._pair_running or self._want_pair is None or outputs is None:
+            return
+        grouping, reference = self._want_pair
+        if (grouping, reference) in self.pair_tables:
+            return
+        self._pair_running = True
+        self._compute_pair(outputs, grouping, reference)
+
+    @work(thread=True, group="pair", exit_on_error=False)
     def _compute_pair(self, outputs: RunOutputs, grouping: str, reference: str) -> None:
         """Run the compare stage with ``reference`` as the reference group (one grouping, no bootstrap)."""
         from workbench.core.compare import compare_corpus
@@ -279,6 +305,7 @@ class KeywordsView(ViewBase):
         self.app.call_from_thread(self._pair_done, outputs, grouping, reference, tables, error)
 
     def _pair_done(self, outputs: RunOutputs, grouping: str, reference: str, tables: dict[str, pd.DataFrame], error: str | None) -> None:
+        self._pair_running = False
         if outputs is not self.outputs:
             return
         if error:
@@ -287,6 +314,8 @@ class KeywordsView(ViewBase):
         self.pair_tables[(grouping, reference)] = tables
         if self.mode == MODE_COMPARE:
             self._show()
+        if self._want_pair is not None and self._want_pair not in self.pair_tables:
+            self._start_pair()
 
     # ------------------------------------------------------------------ choices
 
@@ -332,11 +361,34 @@ class KeywordsView(ViewBase):
     def action_scope(self, step: int) -> None:
         self._cycle("#kw-scope" if self.mode == MODE_TOP else "#kw-a", step)
 
-    def action_other(self, step: int) -> None:
-        self._cycle("#kw-b", step, blank=True)
+    def action_pick(self, what: str) -> None:
+        """Choose group A, group B, the group column or the unit from a list (type to jump)."""
+        outputs = self.outputs
+        if outputs is None:
+            return
+        if self.mode != MODE_COMPARE:
+            self.action_mode("compare")
+        values = K.group_values(outputs, self.grouping)
+        if what == "a":
+            choices, current, title, select_id = [(v, v) for v in values], self.group_a, "Group A", "#kw-a"
+        elif what == "b":
+            choices = [(REST, "the rest (every other group)")] + [(v, v) for v in values]
+            current, title, select_id = self.group_b or REST, "Group B", "#kw-b"
+        elif what == "grouping":
+            choices = [(g, g) for g in K.group_columns(outputs)]
+            current, title, select_id = self.grouping, "Group column", "#kw-group"
+        else:
+            choices = [(u, "all languages (pooled)" if u == POOLED else u) for u in K.units(outputs)]
+            current, title, select_id = self.unit, "Compare within", "#kw-unit"
+        if not choices:
+            self.notify("the study has no group columns to compare (columns.groups)", severity="warning")
+            return
 
-    def action_unit(self, step: int) -> None:
-        self._cycle("#kw-unit", step)
+        def chosen(value: str | None) -> None:
+            if value is not None:
+                self.query_one(select_id, Select).value = Select.NULL if value == REST else value
+
+        self.app.push_screen(ChoiceScreen(title, choices, current), chosen)
 
     def action_ranking(self) -> None:
         self._cycle("#kw-ranking", 1)

@@ -46,7 +46,7 @@ class KwicPanel(Vertical):
         yield FrameGrid(
             [
                 GridColumn("language", "", 3),
-                GridColumn("left", "", 36, "right", _left),
+                GridColumn("left", "", 36, "right", _left, clip="start"),
                 GridColumn("match", "", 14, format=_hit),
                 GridColumn("right", "", format=_left),
                 GridColumn("answer_id", "answer", 12),

@@ -68,6 +68,7 @@ class SourcesView(ViewBase):
         Binding("w", "role('weight')", "Weight", show=False, tooltip="This column is the respondent weight"),
         Binding("h", "role('hint')", "Hint", show=False, tooltip="This column hints at the language"),
         Binding("delete,backspace", "role('')", "No role", show=False, tooltip="This column has no role"),
+        Binding("R", "revert_roles", "Revert", show=False, tooltip="Forget unsaved role changes (back to the study file)"),
         Binding("ctrl+s", "save_roles", "Save roles", tooltip="Write the column roles into the study file and re-read the data"),
         Binding("n", "next_source", "Next source", show=False, tooltip="Preview the next source file"),
         Binding("p", "focus_preview", "Preview", show=False, tooltip="Go to the data preview"),
@@ -146,9 +147,12 @@ class SourcesView(ViewBase):
         frame = frames[self.source_index % len(frames)].copy()
         frame.insert(0, "#", range(1, len(frame) + 1))
         preview.key_column = "#"
-        columns = [str(c) for c in frame.columns][:14]
+        names = [str(c) for c in frame.columns]
+        # Answer columns right after the row number, so they keep room to be read.
+        text = [c for c in names if self.roles.get(c) == "text"]
+        columns = ["#", *text, *[c for c in names if c != "#" and c not in text]][:14]
         preview.columns = [
-            GridColumn(c, c, None if self.roles.get(c) == "text" else _width(frame[c], c)) for c in columns
+            GridColumn(c, c, None if self.roles.get(c) == "text" else _width(frame[c], c, 12)) for c in columns
         ]
         if not any(self.roles.get(c) == "text" for c in columns) and len(preview.columns) > 1:
             last = preview.columns[-1]
@@ -219,6 +223,11 @@ class SourcesView(ViewBase):
             self.roles.pop(column, None)
         else:
             self.roles[column] = role
+        self._show_roles()
+        self._show_preview()
+
+    def action_revert_roles(self) -> None:
+        self.roles = dict(self.saved_roles)
         self._show_roles()
         self._show_preview()
 
