@@ -99,7 +99,7 @@ def _signatures(keys: Sequence[str]) -> np.ndarray:
     b = rng.integers(0, 2**63, size=PERMUTATIONS, dtype=np.uint64)
     powers = np.array([_BASE**i & _MASK32 for i in range(SHINGLE - 1, -1, -1)], dtype=np.uint64)
     out = np.empty((len(keys), PERMUTATIONS), dtype=np.uint64)
-    chunk = 2000
+    chunk = 500  # keys per pass: the (windows x permutations) temporaries stay near 50 MB
     for first in range(0, len(keys), chunk):
         part = [k.ljust(SHINGLE, "\0") for k in keys[first : first + chunk]]
         codes = np.frombuffer("".join(part).encode("utf-32-le"), dtype=np.uint32).astype(np.uint64)
@@ -141,12 +141,30 @@ def find_near_duplicates(
     n = len(keys)
     if n < 2:
         return {}
-    signatures = _signatures(keys)
-    rows = PERMUTATIONS // BANDS
+    bands = _band_buckets(_signatures(keys))
     lengths = np.fromiter((len(k) for k in keys), dtype=np.int64, count=n)
-    # Indel similarity >= t needs |len a - len b| <= (1 - t) (len a + len b).
-    slack = 1.0 - threshold
-    found: list[np.ndarray] = []
+    labels = [g if isinstance(g, set) else set(g) for g in groups]
+    links: dict[int, tuple[int, float]] = {}
+    # Candidates are gathered for a block of later keys at a time: every pair of a
+    # key comes from its own bucket positions, so each block sees all of its keys'
+    # candidates and the links are those of one global pass, in bounded memory.
+    step = max(1024, _BLOCK_PAIRS // (BANDS * MAX_CANDIDATES))
+    for lo in range(0, n, step):
+        hi = min(n, lo + step)
+        later, earlier = _candidates(bands, lengths, lo, hi, 1.0 - threshold)
+        _check(keys, labels, later, earlier, threshold, links)
+    return links
+
+
+#: Candidate pairs held at once (about 16 bytes each, several copies while sorting).
+_BLOCK_PAIRS = 4_000_000
+
+
+def _band_buckets(signatures: np.ndarray) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
+    """Per band: keys sorted by bucket, and per key the start of its bucket there and its rank in it."""
+    n = len(signatures)
+    rows = PERMUTATIONS // BANDS
+    out = []
     for band in range(BANDS):
         # The band's rows are 32-bit values: pack them into one 64-bit bucket id
         # (two rows exactly; more rows are folded by a multiply-xor).
@@ -158,18 +176,45 @@ def find_near_duplicates(
         # rank of each key inside its bucket (keys in input order, stable sort)
         bucket_start = np.r_[0, np.flatnonzero(np.diff(sorted_buckets)) + 1]
         sizes = np.diff(np.r_[bucket_start, n])
-        rank = np.arange(n) - np.repeat(bucket_start, sizes)
+        starts = np.repeat(bucket_start, sizes)
+        position = np.empty(n, dtype=np.int64)
+        position[order] = np.arange(n)
+        # int32 is enough for positions below 2**31 and halves what the bands hold.
+        index = np.int32 if n < 2**31 else np.int64
+        out.append((order.astype(index), starts[position].astype(index), (position - starts[position]).astype(index)))
+    return out
+
+
+def _candidates(
+    bands: list[tuple[np.ndarray, np.ndarray, np.ndarray]],
+    lengths: np.ndarray,
+    lo: int,
+    hi: int,
+    slack: float,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Candidate pairs (later, earlier) for later keys in ``[lo, hi)``: each key's MAX_CHECKS best.
+
+    Every key is paired with each of the first MAX_CANDIDATES earlier keys of its
+    bucket in every band; pairs the lengths rule out are dropped; of the rest a
+    key keeps the MAX_CHECKS sharing the most bands (the most similar, in
+    expectation), ties by the earlier key.
+    """
+    n = len(lengths)
+    found: list[np.ndarray] = []
+    block = np.arange(lo, hi, dtype=np.int64)
+    for order, start, rank in bands:
+        block_rank, block_start = rank[lo:hi], start[lo:hi]
         # pair every key with each of the first MAX_CANDIDATES earlier keys of its bucket
         for offset in range(MAX_CANDIDATES):
-            later = np.flatnonzero(rank > offset)
-            if not len(later):
+            chosen = np.flatnonzero(block_rank > offset)
+            if not len(chosen):
                 break
-            earlier_pos = np.repeat(bucket_start, sizes)[later] + offset
-            a_idx, b_idx = order[later], order[earlier_pos]
+            a_idx, b_idx = block[chosen], order[block_start[chosen] + offset].astype(np.int64)
+            # Indel similarity >= t needs |len a - len b| <= (1 - t) (len a + len b).
             close = np.abs(lengths[a_idx] - lengths[b_idx]) <= slack * (lengths[a_idx] + lengths[b_idx])
             found.append(a_idx[close] * n + b_idx[close])
     if not found:
-        return {}
+        return np.empty(0, dtype=np.int64), np.empty(0, dtype=np.int64)
     pairs, shared = np.unique(np.concatenate(found), return_counts=True)
     later, earlier = np.divmod(pairs, n)
     # Keep each key's MAX_CHECKS candidates that share the most bands: sharing
@@ -179,7 +224,20 @@ def find_near_duplicates(
     group_start = np.r_[0, np.flatnonzero(np.diff(later)) + 1]
     rank = np.arange(len(later)) - np.repeat(group_start, np.diff(np.r_[group_start, len(later)]))
     keep = rank < MAX_CHECKS
-    later, earlier = later[keep], earlier[keep]
+    return later[keep], earlier[keep]
+
+
+def _check(
+    keys: Sequence[str],
+    labels: list[set[object]],
+    later: np.ndarray,
+    earlier: np.ndarray,
+    threshold: float,
+    links: dict[int, tuple[int, float]],
+) -> None:
+    """Exact similarity of the candidate pairs; link each later key to the earliest it matches."""
+    if not len(later):
+        return
     # Exact similarity of every kept pair in one C++ call.
     scores = process.cpdist(
         [keys[i] for i in later.tolist()],
@@ -187,15 +245,12 @@ def find_near_duplicates(
         scorer=Indel.normalized_similarity,
         score_cutoff=threshold,
     )
-    labels = [set(g) for g in groups]
-    links: dict[int, tuple[int, float]] = {}
     hits = np.flatnonzero(scores >= threshold)
     # Link each key to the earliest key it matches.
     for pos in hits[np.lexsort((earlier[hits], later[hits]))].tolist():
         index, first = int(later[pos]), int(earlier[pos])
         if index not in links and labels[index] & labels[first]:
             links[index] = (first, float(scores[pos]))
-    return links
 
 
 def find_duplicates(
