@@ -80,14 +80,27 @@ def main():
 
     watcher = threading.Thread(target=sample, daemon=True)
     watcher.start()
+    # The driver's CPU seconds per stage: process time at each change of stage in the progress reports.
+    cpu = {}
+    current = ["start", time.process_time()]
+
+    def progress(stage, done, total, message):
+        if stage != current[0]:
+            now = time.process_time()
+            cpu[current[0]] = cpu.get(current[0], 0.0) + now - current[1]
+            current[:] = [stage, now]
+
+    from workbench.core.progress import Reporter
+    reporter = Reporter(callback=progress)
     begin = time.perf_counter()
     if engine == "dask":
         from workbench.core.distributed import run_to_folder_dask
-        outputs, written = run_to_folder_dask(study, Path(out_dir))
+        outputs, written = run_to_folder_dask(study, Path(out_dir), reporter)
     else:
         from workbench.core.pipeline import run_to_folder
-        outputs, written = run_to_folder(study, Path(out_dir))
+        outputs, written = run_to_folder(study, Path(out_dir), reporter)
     seconds = time.perf_counter() - begin
+    progress("end", 0, 0, "")
     stop.set()
     tables = pd.concat({name: frame for name, frame in outputs.weighed.keywords.items()}, names=["table", "rank"])
     tables.to_parquet(Path(out_dir).with_suffix(".keywords.parquet"))
@@ -96,6 +109,7 @@ def main():
     print(json.dumps({
         "seconds": seconds,
         "timings": outputs.timings,
+        "stage_cpu": cpu,
         "engine": outputs.engine,
         "answers": int(len(outputs.corpus.answers)),
         "distinct": int(outputs.corpus.answers["raw_text"].nunique()),
@@ -174,6 +188,9 @@ def main() -> None:
     for stage in dask_run["timings"]:
         print(f"{stage + ' s':<16}" + "".join(f"{r['timings'].get(stage, float('nan')):>12.1f}" for r in results.values()))
     print(f"{'total s':<16}" + "".join(f"{r['seconds']:>12.1f}" for r in results.values()))
+    for stage in dask_run["timings"]:
+        print(f"{stage + ' cpu s':<16}" + "".join(f"{r['stage_cpu'].get(stage, float('nan')):>12.1f}"
+                                                 for r in results.values()))
     print(f"{'driver cpu s':<16}" + "".join(f"{r['driver_cpu']:>12.0f}" for r in results.values()))
     print(f"{'children cpu s':<16}" + "".join(f"{r['children_cpu']:>12.0f}" for r in results.values()))
     print(f"{'driver peak MB':<16}" + "".join(f"{r['driver_peak'] * mb:>12.0f}" for r in results.values()))

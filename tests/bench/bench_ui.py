@@ -6,8 +6,10 @@ Run on demand (not part of the test suite)::
 
 It writes an invented study to a temporary folder, then reports side by side:
 
-* the headless pipeline (``run_study``) on that study — the floor for opening it;
-* opening the study in the app until the answers table shows rows;
+* the headless pipeline (``run_study``) on that study, first (lemma tables
+  loaded) and again (tables cached in the process) — the floor for opening it;
+* opening the study in the app (the same process, so tables are warm): until
+  the answers table shows rows (after identify), and until every stage ran;
 * latency from a key press in the Answers view to the first redraw of the
   answers table (typing in the search box, the language filter, the suspect
   filter, paging, jumping to the end). Target: under 150 ms each.
@@ -76,10 +78,13 @@ async def measure_app(study: Path) -> dict[str, list[float]]:
     app = TermloomApp(study, debounce=0)
     began = time.perf_counter()
     async with app.run_test(size=(120, 40)) as pilot:
+        grid = app.workbench.query_one("#answers-grid", FrameGrid)
+        while not grid.row_count:
+            await pilot.pause()
+        results["open: first answers on screen (s)"] = [time.perf_counter() - began]
         await app.wait_until_idle()
         await pilot.pause()
-        grid = app.workbench.query_one("#answers-grid", FrameGrid)
-        results["open study until answers show (s)"] = [time.perf_counter() - began]
+        results["open: every stage done (s)"] = [time.perf_counter() - began]
         drawn: list[float] = []
         original = grid.render_line
 
@@ -122,12 +127,15 @@ def main(argv: list[str]) -> int:
         study_path = write_study(folder, args.answers)
         began = time.perf_counter()
         run_study(load_study(study_path))
+        cold = time.perf_counter() - began
+        began = time.perf_counter()
+        run_study(load_study(study_path))
         headless = time.perf_counter() - began
-        (folder / "bench.decisions.sqlite").unlink(missing_ok=True)
         results = asyncio.run(measure_app(study_path))
     print(f"{args.answers:,} answers")
     print(f"{'measure':<38} {'median':>9} {'max':>9} {'target':>9} {'ratio':>7}")
-    print(f"{'headless run_study (s)':<38} {headless:>9.2f} {headless:>9.2f} {'':>9} {'':>7}")
+    print(f"{'headless run_study, first (s)':<38} {cold:>9.2f} {cold:>9.2f} {'':>9} {'':>7}")
+    print(f"{'headless run_study, again (s)':<38} {headless:>9.2f} {headless:>9.2f} {'':>9} {'':>7}")
     for label, values in results.items():
         median, worst = statistics.median(values), max(values)
         if label.endswith("(s)"):
