@@ -23,6 +23,8 @@ from workbench.ui.app import TermloomApp
 from workbench.ui.screens.choice_screen import ChoiceScreen
 from workbench.ui.screens.help_screen import HelpScreen
 from workbench.ui.widgets.frame_grid import FrameGrid
+from workbench.ui.widgets.keywords_view import KeywordsView
+from workbench.ui.widgets.kwic_panel import KwicPanel
 
 # Pilot tests are coroutines; anyio's pytest plugin runs them on asyncio.
 pytestmark = pytest.mark.anyio
@@ -332,12 +334,25 @@ async def test_compare_two_countries_and_kwic(study: Path) -> None:
         await pilot.press("4", "c")
         kw = _grid(app, "kw-grid")
         assert {"g2", "log_ratio", "p_adj"} <= set(kw.frame.columns)
+        # Group B from the list: Sudmark by name rather than "the rest".
+        await pilot.press("b")
+        await _choose(pilot, "Sudmark")
+        view = app.workbench.query_one(KeywordsView)
+        while ("country", "Sudmark") not in view.pair_tables:
+            await pilot.pause(0.05)
+        await app.workers.wait_for_complete()
+        await pilot.pause()
+        assert view.group_a == "Norland" and view.group_b == "Sudmark"
         kw.focus()
-        await pilot.press("t")
-        assert kw.move_to_key("price") or kw.row_count
+        assert kw.row_count
+        term = str(kw.current_row()["term"])
         await pilot.press("k")
-        panel = _grid(app, "kw-kwic") if False else app.workbench.query_one("#kw-kwic")
+        panel = app.workbench.query_one("#kw-kwic", KwicPanel)
         assert panel.has_class("-shown")
+        await app.workers.wait_for_complete()
+        await pilot.pause()
+        assert panel.label is not None and panel.label.endswith("in Norland and Sudmark")
+        assert panel.lines is not None and len(panel.lines), f"no KWIC lines for {term!r}"
 
 
 # ---------------------------------------------------------------------------- sources and export

@@ -228,3 +228,18 @@ def test_open_a_missing_study_is_one_line_error(tmp_path: Path) -> None:
 
     with pytest.raises(SettingsError, match="does not exist"):
         prepare(tmp_path / "nowhere.study.toml", None)
+
+
+def test_answers_of_groups_keeps_only_the_named_groups_respondents() -> None:
+    """KWIC while comparing two groups reads only their answers; a third group's answers stay out."""
+    from types import SimpleNamespace
+
+    from workbench.ui.keyword_tables import answers_of_groups
+
+    answers = _answers()
+    answers.loc[4, "group:country"] = "Westmark"
+    outputs = SimpleNamespace(answers=answers)
+    chosen = answers_of_groups(outputs, "country", ["Sudmark", "Westmark"])  # type: ignore[arg-type]
+    assert chosen["respondent_id"].tolist() == ["r2", "r4", "r5"]
+    assert answers_of_groups(outputs, "country", ["Eastmark"]).empty  # type: ignore[arg-type]
+    assert answers_of_groups(outputs, "region", ["Norland"]).empty  # type: ignore[arg-type]

@@ -15,6 +15,7 @@ from typing import TYPE_CHECKING
 
 import pandas as pd
 
+from workbench.core.corpus import RESPONDENT_ID
 from workbench.core.counting import POOLED
 from workbench.core.pipeline import RunOutputs
 from workbench.core.settings import Study
@@ -303,6 +304,20 @@ def concept_terms(outputs: RunOutputs, concept: str) -> list[tuple[str, str]]:
                 if term:
                     pairs.append((language, term))
     return pairs
+
+
+def answers_of_groups(outputs: RunOutputs, grouping: str, values: list[str]) -> pd.DataFrame:
+    """The answers of respondents whose ``grouping`` value is one of ``values`` (same rule as compare)."""
+    from workbench.core.groups import NAME_SEPARATOR, groupings
+
+    spec = grouping.split(NAME_SEPARATOR)
+    found, _notes = groupings(outputs.answers, spec[:1], [spec] if len(spec) > 1 else [])
+    chosen = next((g for g in found if g.name == grouping), None)
+    if chosen is None:
+        return outputs.answers.iloc[:0]
+    members = chosen.by_respondent[chosen.by_respondent.isin(values)].index
+    ids = outputs.answers[RESPONDENT_ID].astype(str)
+    return outputs.answers[ids.isin(set(members)).to_numpy()]
 
 
 def term_and_language(term: str, unit: str | None, expected: list[str]) -> tuple[str, str | None]:

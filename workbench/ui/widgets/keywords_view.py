@@ -402,16 +402,27 @@ class KeywordsView(ViewBase):
         if outputs is None or row is None:
             return
         expected = list(outputs.study.languages.expected)
+        targets: list[tuple[str | None, str]]
         if self.mode == MODE_CONCEPTS:
             concept = str(row.get("concept", ""))
-            targets = K.concept_terms(outputs, concept)
+            targets = list(K.concept_terms(outputs, concept))
             label = f"concept '{concept}'"
         else:
             unit = K.scope_unit(self.scope) if self.mode == MODE_TOP else self.unit
             term, language = K.term_and_language(str(row.get("term", "")), unit, expected)
-            targets = [(language, term)]
-            label = f"'{term}' ({language or 'every language'})"
-        self.query_one(KwicPanel).show_targets(label, outputs, targets)
+            # A pooled row without a language tag is a glossary concept: its terms in every language.
+            pairs = K.concept_terms(outputs, term) if language is None else []
+            if pairs:
+                targets, label = list(pairs), f"concept '{term}'"
+            else:
+                targets = [(language, term)]
+                label = f"'{term}' ({language or 'every language'})"
+        answers = None
+        if self.mode == MODE_COMPARE and self.grouping and self.group_a and self.group_b:
+            # Comparing two named groups: the lines of their answers only.
+            answers = K.answers_of_groups(outputs, self.grouping, [self.group_a, self.group_b])
+            label += f" in {self.group_a} and {self.group_b}"
+        self.query_one(KwicPanel).show_targets(label, outputs, targets, answers)
 
     def check_action(self, action: str, parameters: tuple[object, ...]) -> bool | None:
         if action == "close_kwic":

@@ -60,21 +60,32 @@ class KwicPanel(Vertical):
     def grid(self) -> FrameGrid:
         return self.query_one("#kwic-grid", FrameGrid)
 
-    def show_targets(self, label: str, outputs: RunOutputs, targets: list[tuple[str | None, str]]) -> None:
-        """Look up and show the answers holding any of ``targets`` (``(language or None, term)``)."""
+    def show_targets(
+        self,
+        label: str,
+        outputs: RunOutputs,
+        targets: list[tuple[str | None, str]],
+        answers: pd.DataFrame | None = None,
+    ) -> None:
+        """Look up and show the answers holding any of ``targets`` (``(language or None, term)``).
+
+        ``answers`` narrows the search to those answers (default: every answer of the run).
+        """
         self.label = label
         self.add_class("-shown")
         self.query_one("#kwic-title", Static).update(f"Keyword in context: {label} — looking up…")
         self.grid.empty_text = "looking up…"
         self.grid.set_frame(pd.DataFrame(columns=["answer_id", "language", "left", "match", "right"]))
-        self._lookup(label, outputs, targets)
+        self._lookup(label, outputs, targets, outputs.answers if answers is None else answers)
 
     @work(thread=True, exclusive=True, group="kwic", exit_on_error=False)
-    def _lookup(self, label: str, outputs: RunOutputs, targets: list[tuple[str | None, str]]) -> None:
+    def _lookup(
+        self, label: str, outputs: RunOutputs, targets: list[tuple[str | None, str]], answers: pd.DataFrame
+    ) -> None:
         from workbench.ui.kwic_lines import kwic_for  # loads spaCy; only when first asked
 
         try:
-            lines: pd.DataFrame | None = kwic_for(outputs.answers, outputs.study, outputs.decisions, targets)
+            lines: pd.DataFrame | None = kwic_for(answers, outputs.study, outputs.decisions, targets)
             error = None
         except TermloomError as exc:
             lines, error = None, str(exc)
