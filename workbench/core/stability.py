@@ -153,15 +153,23 @@ def bootstrap_top_k(
     rng = np.random.default_rng(seed)
     # Resamples per batch: bounded so the score array and the rank comparisons stay small.
     batch = int(max(1, min(resamples, 250_000 // max(1, n_groups * n_terms))))
+    member_start = starts[g_sorted]
+    member_size = sizes[g_sorted].astype(np.float64)
     for first in range(0, resamples, batch):
         if reporter is not None:
             reporter.update("compare", first, resamples, "bootstrap stability")
         size = min(batch, resamples - first)
-        # Uniform draw within each respondent's own group: stratified bootstrap.
-        draws = starts[g_sorted] + np.floor(rng.random((size, n_members)) * sizes[g_sorted]).astype(np.int64)
-        flat = (draws + (np.arange(size) * n_members)[:, None]).ravel()
-        multiplicity = np.bincount(flat, minlength=size * n_members).reshape(size, n_members).astype(np.float64)
-        scores = evaluate(multiplicity)
+        # Uniform draw within each respondent's own group: stratified bootstrap. The
+        # draws are u * size in [0, size), so truncation is the floor.
+        draws = rng.random((size, n_members))
+        draws *= member_size
+        flat = draws.astype(np.int64)
+        del draws
+        flat += member_start
+        flat += (np.arange(size, dtype=np.int64) * n_members)[:, None]
+        counts = np.bincount(flat.ravel(), minlength=size * n_members).reshape(size, n_members)
+        del flat
+        scores = evaluate(counts)  # w · m below turns the integer counts into floats exactly
         # Competition rank: 1 + the number of terms scoring strictly higher, read off each
         # row sorted once (one vectorised sort for the batch, then a binary search per row).
         ordered = np.sort(scores, axis=-1)
@@ -174,24 +182,19 @@ def bootstrap_top_k(
     for g, chosen in enumerate(picks):
         if len(chosen) == 0:
             continue
-        frame = pd.DataFrame(
-            {
-                "group": names[g],
-                "rank": competition_ranks(original[g : g + 1], [chosen])[0],
-                "term": np.asarray(terms)[chosen],
-                "score": original[g, chosen],
-            }
-        )
+        columns: dict[str, object] = {
+            "group": names[g],
+            "rank": competition_ranks(original[g : g + 1], [chosen])[0],
+            "term": np.asarray(terms)[chosen],
+            "score": original[g, chosen],
+        }
         if resamples > 0:
-            frame["stay_share"] = (ranks[g] <= k).mean(axis=0)
-            low, high = np.percentile(ranks[g], [2.5, 97.5], axis=0)
-            frame["rank_low"], frame["rank_high"] = low, high
+            columns["stay_share"] = (ranks[g] <= k).mean(axis=0)
+            columns["rank_low"], columns["rank_high"] = np.percentile(ranks[g], [2.5, 97.5], axis=0)
         else:
-            frame["stay_share"] = np.nan
-            frame["rank_low"] = np.nan
-            frame["rank_high"] = np.nan
-        frame["resamples"] = resamples
-        frames.append(frame)
+            columns["stay_share"] = columns["rank_low"] = columns["rank_high"] = np.nan
+        columns["resamples"] = resamples
+        frames.append(pd.DataFrame(columns))
     if not frames:
         return pd.DataFrame(columns=["group", "rank", "term", "score", "stay_share", "rank_low", "rank_high", "resamples"])
     return pd.concat(frames, ignore_index=True)
