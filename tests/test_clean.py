@@ -167,3 +167,29 @@ def test_empty_table_gets_the_columns() -> None:
 def test_mask_kinds_follow_the_study() -> None:
     out, _ = _clean(["jo@example.org 4111 1111 1111 1111"], study=_study(mask=["card"]))
     assert out.iloc[0]["clean_text"] == "jo@example.org ⟨card⟩"
+
+
+def test_windowed_mojibake_check_agrees_with_ftfy_is_bad() -> None:
+    """Reference library: ftfy ``badness.is_bad``. Clean searches ftfy's pattern only near
+    non-ASCII characters (``clean._is_bad``); the verdict must be ftfy's own on mojibake made
+    by decoding UTF-8 bytes as cp1252, Latin-1, cp1251, cp1253, cp1257 and MacRoman (ftfy's
+    own categories of mojibake), on every letter of Latin-1 to Cyrillic in ASCII context, and on
+    seeded random strings drawn from ftfy's ``MOJIBAKE_CATEGORIES`` (data shipped with ftfy)."""
+    import random
+
+    from ftfy.badness import MOJIBAKE_CATEGORIES, is_bad
+
+    from workbench.core import clean
+
+    assert clean._BADNESS_WIDTH > 0, "ftfy's pattern no longer passes the window check"
+    letters = [chr(cp) for cp in range(0xA0, 0x500) if unicodedata.category(chr(cp)).startswith("L")]
+    texts = [f"ab {ch}{ch.upper()} cd" for ch in letters] + [f"{ch} x" for ch in letters]
+    for encoding in ("cp1252", "latin-1", "cp1251", "cp1253", "cp1257", "mac_roman"):
+        for text in list(texts[: len(letters)]):
+            texts.append(text.encode("utf-8").decode(encoding, errors="replace"))
+    pool = [c for c in "".join(MOJIBAKE_CATEGORIES.values()) + "abc XYZ.,!?'()0123 \t" if c != "-"]
+    rng = random.Random(20240601)
+    texts += ["".join(rng.choice(pool) for _ in range(rng.randint(0, 14))) for _ in range(20_000)]
+    verdicts = [is_bad(t) for t in texts]
+    assert 0 < sum(verdicts) < len(texts)
+    assert [clean._is_bad(t) for t in texts] == verdicts

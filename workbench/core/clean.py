@@ -62,16 +62,16 @@ from dataclasses import dataclass
 
 import ftfy
 import pandas as pd
-from ftfy.badness import is_bad
+from ftfy.badness import BADNESS_RE, is_bad
 
 from workbench.core import corpus as C
 from workbench.core.decisions import Decisions
-from workbench.core.duplicates import DUPLICATE_CODES, find_duplicates
+from workbench.core.duplicates import DUPLICATE_CODES, duplicate_key, find_duplicates
 from workbench.core.duplicates import MESSAGES as DUPLICATE_MESSAGES
 from workbench.core.errors import SettingsError
 from workbench.core.ledger import Ledger
 from workbench.core.mapping import LocalMapper, Mapper, fingerprint
-from workbench.core.nonanswer import JUNK_CODES, MESSAGES, NonAnswerRules, phrase_key
+from workbench.core.nonanswer import JUNK_CODES, MESSAGES, NonAnswerRules, char_class, phrase_key
 from workbench.core.pii import check_regions, default_regions, mask_personal_data
 from workbench.core.profiles import LanguageProfile
 from workbench.core.progress import Reporter
@@ -98,8 +98,94 @@ def _removal_table() -> dict[int, None]:
 
 _REMOVE = _removal_table()
 _SURROGATE_RE = re.compile("[\ud800-\udfff]")
-_REMOVE_RE = re.compile("[" + "".join(re.escape(chr(cp)) for cp in sorted(_REMOVE)) + "]")
+
+# As ranges (25 instead of 127 characters): the per-character test is five times cheaper.
+_REMOVE_RE = re.compile(char_class(_REMOVE))
 _FTFY_CONFIG = ftfy.TextFixerConfig(unescape_html=False, normalization="NFC", explain=False)
+
+
+def _badness_width() -> int:
+    """Longest match of ftfy's mojibake pattern if every match must hold a non-ASCII character, else 0.
+
+    Read off the pattern's parse tree: each alternative must have a
+    mandatory character (a literal or a class with no ASCII member), and
+    nothing may look around (only ``^``, which a search from a later position
+    does not match, as in the whole text). Then a match lies within ``width``
+    characters of one of the text's non-ASCII characters, and searching the
+    windows around them gives the same answer as searching the whole text.
+    A future ftfy whose pattern fails the check is searched whole.
+    """
+    try:
+        from re import _constants as K  # noqa: N812 - the re module's own opcode names
+        from re import _parser
+
+        pattern = BADNESS_RE
+        if pattern.flags & re.IGNORECASE:
+            return 0
+        tree = _parser.parse(pattern.pattern, pattern.flags)
+        width = tree.getwidth()[1]
+        if width >= _parser.MAXREPEAT:
+            return 0
+
+        def non_ascii(op: object, av: object) -> bool:
+            if op is K.LITERAL:
+                return av >= 128  # type: ignore[operator]
+            if op is K.IN:
+                return all(
+                    (o is K.LITERAL and a >= 128) or (o is K.RANGE and a[0] >= 128)  # type: ignore[index,operator]
+                    for o, a in av  # type: ignore[attr-defined]
+                )
+            return False
+
+        def plain(items: object) -> bool:
+            for op, av in items:  # type: ignore[attr-defined]
+                if op is K.AT:
+                    if av is not K.AT_BEGINNING:
+                        return False
+                elif op in (K.ASSERT, K.ASSERT_NOT, K.GROUPREF, K.GROUPREF_EXISTS):
+                    return False
+                if op is K.BRANCH and not all(plain(b) for b in av[1]):
+                    return False
+                if op in (K.MAX_REPEAT, K.MIN_REPEAT, K.POSSESSIVE_REPEAT) and not plain(av[2]):
+                    return False
+                if op is K.SUBPATTERN and not plain(av[-1]):
+                    return False
+            return True
+
+        items = list(tree)
+        branches = items[0][1][1] if len(items) == 1 and items[0][0] is K.BRANCH else [items]
+        if not plain(items) or not all(any(non_ascii(op, av) for op, av in b) for b in branches):
+            return 0
+        return int(width)
+    except Exception:  # noqa: BLE001 - a private parser that may change: fall back to the whole search
+        return 0
+
+
+_BADNESS_WIDTH = _badness_width()
+_NON_ASCII_RE = re.compile(r"[^\x00-\x7f]+")
+
+
+def _is_bad(text: str) -> bool:
+    """ftfy's ``is_bad`` (mojibake seen), searched only near non-ASCII characters when that is exact.
+
+    The pattern tries some 40 alternatives at every position; survey text is
+    mostly ASCII, so the windows are a small part of it.
+    """
+    width = _BADNESS_WIDTH
+    if not width:
+        return is_bad(text)
+    lo: int | None = None
+    hi = 0
+    for m in _NON_ASCII_RE.finditer(text):  # runs of non-ASCII characters
+        start = max(0, m.start() - width + 1)
+        if lo is None:
+            lo = start
+        elif start > hi:
+            if BADNESS_RE.search(text, lo, hi):
+                return True
+            lo = start
+        hi = m.end() - 1 + width
+    return lo is not None and BADNESS_RE.search(text, lo, hi) is not None
 
 
 def normalise_text(raw: str, repair_mojibake: bool = True) -> tuple[str, list[str]]:
@@ -121,7 +207,7 @@ def normalise_text(raw: str, repair_mojibake: bool = True) -> tuple[str, list[st
             if not text.isascii():
                 text = unicodedata.normalize("NFC", text)
     else:
-        if repair_mojibake and is_bad(text):
+        if repair_mojibake and _is_bad(text):
             fixed = ftfy.fix_text(text, _FTFY_CONFIG)
             if fixed != text:
                 notes.append("mojibake")
@@ -160,8 +246,10 @@ def _regions(study: Study) -> tuple[str, ...]:
     return tuple(regions) if regions else default_regions(study.languages.expected)
 
 
-#: What cleaning one raw text gives: masked clean text, masks, content code, repair notes.
-CleanedText = tuple[str, tuple[tuple[str, int, int], ...], str | None, tuple[str, ...]]
+#: What cleaning one raw text gives: masked clean text, masks, content code, repair notes,
+#: and the duplicate key (``duplicates.duplicate_key`` of the masked text; ``""`` for junk,
+#: which the duplicate search skips).
+CleanedText = tuple[str, tuple[tuple[str, int, int], ...], str | None, tuple[str, ...], str]
 
 
 @dataclass(frozen=True)
@@ -201,7 +289,12 @@ def clean_texts(texts: list[str], kit: tuple[NonAnswerRules, CleanRecipe]) -> li
     for raw in texts:
         text, notes = normalise_text(raw, repair)
         masked, masks = mask_personal_data(text, kinds, regions) if kinds else (text, [])
-        out.append((masked, tuple(masks), rules.classify(masked), tuple(notes)))
+        code, key = rules.classify_keyed(masked)
+        if code is not None and code in WEIGHTING_JUNK:
+            key = ""
+        elif key is None:
+            key = duplicate_key(masked)
+        out.append((masked, tuple(masks), code, tuple(notes), key))
     return out
 
 
@@ -266,6 +359,7 @@ def clean_answers(
         [code is None or code not in WEIGHTING_JUNK for code in content],
         settings.near_duplicate_min_chars,
         settings.near_duplicate,
+        keys=[r[4] for r in results],
     )
 
     sources = out[C.SOURCE].astype(str).tolist() if n else []
@@ -276,7 +370,7 @@ def clean_answers(
     events = []
     for i in range(n):
         aid, src, row = ids[i], sources[i], rows[i]
-        masked, masks, code, notes = results[i]
+        masked, masks, code, notes, _ = results[i]
         flags: list[str] = []
         recorded = False
         if code is not None:

@@ -260,6 +260,8 @@ def find_duplicates(
     eligible: Sequence[bool],
     min_chars: int,
     threshold: float,
+    *,
+    keys: Sequence[str] | None = None,
 ) -> list[tuple[str, int, float] | None]:
     """Duplicate finding for every answer, in input order.
 
@@ -274,6 +276,9 @@ def find_duplicates(
         respondents count as copies, and near-duplicates are searched.
     threshold
         Near-duplicate similarity bar.
+    keys
+        Per answer, its :func:`duplicate_key` when the caller has it already
+        (only eligible answers' keys are read); computed here otherwise.
 
     Returns
     -------
@@ -281,16 +286,19 @@ def find_duplicates(
     """
     n = len(texts)
     result: list[tuple[str, int, float] | None] = [None] * n
-    cache: dict[str, str] = {}
-    keys = []
-    for text, ok in zip(texts, eligible, strict=True):
-        if not ok:
-            keys.append("")
-            continue
-        key = cache.get(text)
-        if key is None:
-            key = cache[text] = duplicate_key(text)
-        keys.append(key)
+    if keys is not None:
+        keys = [key if ok else "" for key, ok in zip(keys, eligible, strict=True)]
+    else:
+        cache: dict[str, str] = {}
+        keys = []
+        for text, ok in zip(texts, eligible, strict=True):
+            if not ok:
+                keys.append("")
+                continue
+            key = cache.get(text)
+            if key is None:
+                key = cache[text] = duplicate_key(text)
+            keys.append(key)
     first_by_respondent: dict[tuple[str, str], int] = {}
     first_by_question: dict[tuple[str, str], int] = {}
     for i in range(n):
