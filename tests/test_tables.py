@@ -122,6 +122,41 @@ def test_xlsx_cells_are_text_not_formulas_and_numbers_stay_numbers(tmp_path: Pat
     assert sheet.column_dimensions["A"].width > sheet.column_dimensions["C"].width
 
 
+def test_xlsx_rows_written_column_wise_match_xlsxwriters_own_cell_writers(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """The column-wise row writer gives the same file, byte for byte, as XlsxWriter's write_string/number/boolean.
+
+    Reference: XlsxWriter's per-cell writers in constant-memory mode (its XML
+    escaping of markup, control characters as _xHHHH_, xml:space for edge
+    white space, "<r>" rich text); also over several sheets and empty rows.
+    """
+    import workbench.core.tables as tables
+
+    texts = ["plain", "a & b <c> \"q\"", "ctl\x01\x1f", "_x0041_ kept", " lead", "trail ", "line\nbreak", "<r>rich</r>",
+             "", None, "Straße ελληνικά", "\ufffeodd", "tab\tin"]
+    n = len(texts)
+    frame = pd.DataFrame({
+        "text": texts,
+        "score": [0.1, -2.5, np.nan, 1e-300, 123456789.123456789, 3.0, 1 / 3, -0.0, 7.0, np.nan, 2.0, 1e20, 5.5],
+        "n": np.arange(n, dtype=np.int64) - 3,
+        "flag": [i % 3 == 0 for i in range(n)],
+        "gap": [None] * n,
+    })
+    tables_in = {"a": frame, "b": frame.iloc[:0], "c": frame.iloc[[9]]}
+    used = []
+    check = tables._rows_fast_apply
+    monkeypatch.setattr(tables, "_rows_fast_apply", lambda sheet, columns: used.append(check(sheet, columns)) or used[-1])
+    fast, _ = write_xlsx(tmp_path / "fast.xlsx", tables_in, max_rows=6, descriptions={"a": "d"})
+    assert used and all(used)  # every sheet (contents included) went the column-wise way
+    monkeypatch.setattr(tables, "_rows_fast_apply", lambda sheet, columns: False)
+    slow, _ = write_xlsx(tmp_path / "slow.xlsx", tables_in, max_rows=6, descriptions={"a": "d"})
+    assert fast.read_bytes() == slow.read_bytes()
+    book = openpyxl.load_workbook(fast)
+    assert book["a"]["A3"].value == "a & b <c> \"q\"" and book["a"]["B3"].value == -2.5 and book["a"]["D2"].value is True
+    assert book["a (3)"]["A2"].value == "Straße ελληνικά"
+
+
 def test_excel_row_limit_constant() -> None:
     """Microsoft, "Excel specifications and limits": 1,048,576 rows, 32,767 characters per cell [recalled from memory]."""
     assert EXCEL_MAX_ROWS == 1_048_576 == 2**20
@@ -175,6 +210,41 @@ def test_json_keeps_exact_text_and_full_precision(tmp_path: Path) -> None:
     records = json.loads(path.read_text(encoding="utf-8"))
     assert records[0] == {"term": OWASP_HYPERLINK, "w": third, "tags": ["a", "b"]}
     assert records[1]["w"] is None and records[1]["term"] == "ελληνικά"
+
+
+def test_json_lines_are_what_json_dumps_writes_for_each_record(tmp_path: Path) -> None:
+    """Each line of the JSON table equals json.dumps(record, ensure_ascii=False) (Python's json module, the reference).
+
+    The file is assembled column-wise; the records come from json_records, so
+    escapes, float reprs, NaN/inf, nested values and pandas' own dtypes must all agree.
+    """
+    from workbench.core.tables import json_records
+
+    frame = pd.DataFrame({
+        "te%xt": ['q"uote\\', "ελλην\n\u2028", None],
+        "f": [1.0 / 3.0, np.nan, -np.inf],
+        "i": np.array([1, -2, 3], dtype=np.int64),
+        "u": np.array([1, 2, 250], dtype=np.uint8),
+        "b": [True, False, True],
+        "nested": [["x", 1], {"k": np.int64(2)}, np.float64(0.1)],
+        "s": pd.Series(["x", None, "z"], dtype="string"),
+        "I": pd.array([1, None, 3], dtype="Int64"),
+        "f32": np.array([0.1, 2, -0.0], dtype=np.float32),
+    })
+    path = write_json_table(tmp_path / "t.json", frame)
+    text = path.read_text(encoding="utf-8")
+    expected = [json.dumps(r, ensure_ascii=False, allow_nan=False) for r in json_records(frame)]
+    assert text == "[\n" + ",\n".join(expected) + "\n]\n"
+    assert json.loads(text)[2]["f"] == "-inf" and json.loads(text)[1]["s"] is None
+
+
+def test_list_cells_in_csv_are_json_text(tmp_path: Path) -> None:
+    """List cells (terms, flags, masks) are written as json.dumps writes them (Python's json module, the reference)."""
+    cells = [["a", "b\"c", "ü"], [], ("t", "u"), [["phone", 39, 46]], ["x", 1.5], ["=not a formula"]]
+    frame = pd.DataFrame({"terms": pd.Series(cells, dtype=object)})
+    path = write_csv(tmp_path / "t.csv", frame)
+    rows = list(csv.reader(io.StringIO(path.read_text(encoding="utf-8-sig"))))
+    assert [r[0] for r in rows[1:]] == [json.dumps(list(c), ensure_ascii=False) for c in cells]
 
 
 def test_stata_names_follow_stata_rules() -> None:

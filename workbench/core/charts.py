@@ -128,7 +128,11 @@ def _finish_axes(axes: Any, positions: np.ndarray, labels: list[str], title: str
     axes.set_yticks(positions, labels)
     axes.invert_yaxis()
     axes.set_xlabel(xlabel)
-    axes.set_title(textwrap.shorten(title, 90), loc="left", fontsize=11)
+    # The y axis has no title: fixing its (empty) label's place spares another measurement of the tick labels.
+    axes.yaxis.set_label_coords(0.0, 0.5)
+    # A fixed title height (where matplotlib's automatic placement puts it: nothing is drawn above
+    # the axes) spares a measurement of every tick label at each save.
+    axes.set_title(textwrap.shorten(title, 90), loc="left", fontsize=11, y=1.0)
     axes.grid(axis="x", alpha=0.3)
     axes.set_axisbelow(True)
 

@@ -40,8 +40,11 @@ vocabulary, stop words removed — sorted by G² or frequency, most telling
 first) holds its first :data:`XLSX_TERM_ROWS` rows plus any further
 significant keyness rows; its CSV and JSON files hold every row, and the
 workbook's contents sheet says so. (Writing a spreadsheet cell costs about
-ten microseconds; a 100,000-answer study has 1.4 million of them in such
-tables, most far below any significance.)
+three microseconds, compressed; a 100,000-answer study has 1.4 million of
+them in such tables, most far below any significance.)
+
+A table written both as CSV and into a workbook is made spreadsheet-safe
+once (see :func:`workbench.core.tables.spreadsheet_frame`).
 
 Every file is written atomically (see :mod:`workbench.core.atomic`). CSV and
 XLSX text cells are protected against formula injection (see
@@ -83,7 +86,15 @@ from workbench.core.matrices import (
     write_npz,
 )
 from workbench.core.progress import Reporter
-from workbench.core.tables import to_jsonable, write_csv, write_json_table, write_stata, write_xlsx
+from workbench.core.tables import (
+    CSV_SLICE_ROWS,
+    spreadsheet_frame,
+    to_jsonable,
+    write_csv,
+    write_json_table,
+    write_stata,
+    write_xlsx,
+)
 
 if TYPE_CHECKING:
     from workbench.core.pipeline import RunOutputs
@@ -668,21 +679,32 @@ def _write_table_group(
         return
     used: set[str] = set()
     stems: dict[str, str] = {}
+    # Tables written to CSV and XLSX are made spreadsheet-safe once (small ones: a big one is made
+    # safe in slices by write_csv, so its safe copy never exists whole).
+    share = sink.wants("csv") and sink.wants("xlsx")
+    safe: dict[str, pd.DataFrame] = {}
     for number, (name, frame) in enumerate(tables.items()):
         sink.progress(f"{folder} tables: {number + 1:,} of {len(tables):,}")
         stem = safe_name(name, used)
         # Where the whole table is, for a workbook sheet that shows only its top.
         stems[name] = f"{folder}/{stem}.csv" if sink.wants("csv") else f"{folder}/{stem}.json" if sink.wants("json") else ""
+        if share and len(frame) <= CSV_SLICE_ROWS:
+            safe[name] = spreadsheet_frame(frame)
         if sink.wants("csv"):
-            sink.add(write_csv(sink.path(folder, f"{stem}.csv"), frame))
+            if name in safe:
+                sink.add(write_csv(sink.path(folder, f"{stem}.csv"), safe[name], prepared=True))
+            else:
+                sink.add(write_csv(sink.path(folder, f"{stem}.csv"), frame))
         if sink.wants("json"):
             sink.add(write_json_table(sink.path(folder, f"{stem}.json"), frame))
     if sink.wants("xlsx"):
         if descriptions is None:
             descriptions = {name: _DESCRIPTIONS.get(name.split("__")[0], _DESCRIPTIONS.get(folder, "")) for name in tables}
         shown, descriptions = _workbook_tables(tables, descriptions, stems)
+        # A sheet shows a table's first rows: the same rows of its safe copy.
+        shown = {name: safe[name].head(len(frame)) if name in safe else frame for name, frame in shown.items()}
         path, notes = write_xlsx(
-            sink.path(folder, f"{folder}.xlsx"), shown, descriptions=descriptions, progress=sink.progress
+            sink.path(folder, f"{folder}.xlsx"), shown, descriptions=descriptions, progress=sink.progress, prepared=set(safe)
         )
         sink.add(path, notes)
 

@@ -126,9 +126,15 @@ def long_form(
     coo = [_canonical(m).tocoo() for m in present]
     n_cols = np.int64(max(shape[1], 1))
     keys = [c.row.astype(np.int64) * n_cols + c.col.astype(np.int64) for c in coo]
-    union = np.unique(np.concatenate(keys)) if len(keys) > 1 else np.sort(keys[0])
+    # Canonical CSR gives strictly increasing keys; when both matrices hold the same cells (the
+    # usual case) those keys are the union and each matrix's values are already in its order.
+    increasing = all(bool(np.all(k[1:] > k[:-1])) for k in keys)
+    same = increasing and all(np.array_equal(k, keys[0]) for k in keys[1:])
+    union = keys[0] if same else np.unique(np.concatenate(keys)) if len(keys) > 1 else np.sort(keys[0])
 
     def values_at(position: int) -> np.ndarray:
+        if same:
+            return coo[position].data.astype(np.float64, copy=False)
         out = np.zeros(len(union), dtype=np.float64)
         order = np.argsort(keys[position], kind="stable")
         out[np.searchsorted(union, keys[position][order])] = coo[position].data[order]
