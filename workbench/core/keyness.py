@@ -424,14 +424,21 @@ def keyness_tables(
         rel_a, rel_b = a / n_a[:, None], b / n_b[:, None]
         share_a, share_b = a_men / ws_a[:, None], b_men / ws_b[:, None]
     testable = (a_raw + b_raw) >= min_freq
+    term_objects = np.asarray(terms, dtype=object)
+    # Sorting by (G² descending, term) with NumPy gives pandas' order when every term
+    # is a str (code-point order in both; NaN last in both) at a fraction of the cost.
+    term_text = term_objects.astype(str) if all(isinstance(x, str) for x in term_objects) else None
     out = []
     for row, g in enumerate(t):
         keep = np.flatnonzero(testable[row])
         p_adj = benjamini_hochberg(stats.p[row, keep])
+        if term_text is not None:
+            order = np.lexsort((term_text[keep], -stats.g2[row, keep]))
+            keep, p_adj = keep[order], p_adj[order]
         frame = pd.DataFrame(
             {
                 # Object dtype: converting thousands of terms to Arrow strings per table costs more than the statistics.
-                "term": pd.Series(np.asarray(terms, dtype=object)[keep], dtype=object),
+                "term": pd.Series(term_objects[keep], dtype=object),
                 "freq_group": a[row, keep],
                 "freq_ref": b[row, keep],
                 "rel_group": rel_a[row, keep],
@@ -448,7 +455,8 @@ def keyness_tables(
                 "weighted": weighted,
             }
         )
-        frame = frame.sort_values(["g2", "term"], ascending=[False, True], kind="stable").reset_index(drop=True)
+        if term_text is None:
+            frame = frame.sort_values(["g2", "term"], ascending=[False, True], kind="stable").reset_index(drop=True)
         out.append(
             KeynessTable(
                 target=sums.values[g],
