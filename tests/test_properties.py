@@ -39,7 +39,7 @@ THOROUGH = os.environ.get("HYPOTHESIS_PROFILE") == "thorough"
 #: Longest generated token; the thorough profile goes further.
 LONG = 6_000 if THOROUGH else 3_000
 #: Examples run so far in this process; the thorough profile reports every PROGRESS_EVERY of them
-#: on the real stderr (pytest captures the test's own), since a run takes hours.
+#: on stderr, since a run takes hours (run it with ``pytest -s``: pytest captures file descriptor 2 too).
 _RUN = [0]
 PROGRESS_EVERY = 250
 
