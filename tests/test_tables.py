@@ -129,11 +129,12 @@ def test_xlsx_rows_written_column_wise_match_xlsxwriters_own_cell_writers(
 
     Reference: XlsxWriter's per-cell writers in constant-memory mode (its XML
     escaping of markup, control characters as _xHHHH_, xml:space for edge
-    white space, "<r>" rich text); also over several sheets and empty rows.
+    white space); also over several sheets and empty rows. (Text shaped like its rich-string XML is the one
+    deliberate difference: see the next test.)
     """
     import workbench.core.tables as tables
 
-    texts = ["plain", "a & b <c> \"q\"", "ctl\x01\x1f", "_x0041_ kept", " lead", "trail ", "line\nbreak", "<r>rich</r>",
+    texts = ["plain", "a & b <c> \"q\"", "ctl\x01\x1f", "_x0041_ kept", " lead", "trail ", "line\nbreak", "a <r>b</r>",
              "", None, "Straße ελληνικά", "\ufffeodd", "tab\tin"]
     n = len(texts)
     frame = pd.DataFrame({
@@ -155,6 +156,18 @@ def test_xlsx_rows_written_column_wise_match_xlsxwriters_own_cell_writers(
     book = openpyxl.load_workbook(fast)
     assert book["a"]["A3"].value == "a & b <c> \"q\"" and book["a"]["B3"].value == -2.5 and book["a"]["D2"].value is True
     assert book["a (3)"]["A2"].value == "Straße ελληνικά"
+
+
+def test_xlsx_text_shaped_like_rich_string_xml_stays_text(tmp_path: Path) -> None:
+    """A cell "<r><b>x</r>" is escaped like other text, so the workbook parses (openpyxl) and holds the exact text.
+
+    XlsxWriter's per-cell writer in constant-memory mode copies such text raw
+    (its rich-string form), which openpyxl refuses as malformed XML.
+    """
+    texts = ["<r><b>x</r>", "<r>plain</r>"]
+    path, _notes = write_xlsx(tmp_path / "t.xlsx", {"a": pd.DataFrame({"t": texts})})
+    book = openpyxl.load_workbook(path)
+    assert [c.value for c in book["a"]["A"]] == ["t", *texts]
 
 
 def test_excel_row_limit_constant() -> None:

@@ -554,7 +554,9 @@ def _write_rows_fast(sheet: Any, columns: list[tuple[str, list[Any], int]], star
     compares the files byte for byte): numbers as ``{:.16G}``, booleans as
     ``t="b"`` 1/0, text as an in-line string, escaped by XlsxWriter's own
     functions unless plain. Empty cells (``None``) are left out, and a row
-    without cells is not written, as XlsxWriter does.
+    without cells is not written, as XlsxWriter does. One difference: text
+    shaped like XlsxWriter's rich-string XML (``<r>...</r>``) is escaped as
+    text instead of copied raw (raw, it can make the workbook unreadable).
     """
     import xlsxwriter.utility
 
@@ -565,8 +567,9 @@ def _write_rows_fast(sheet: Any, columns: list[tuple[str, list[Any], int]], star
         if _xlsx_plain(text):
             return f' t="inlineStr"><is><t>{text}</t></is></c>'
         text = escape_control(text)
-        if text.startswith("<r>") and text.endswith("</r>"):  # XlsxWriter writes such text as rich text
-            return f' t="inlineStr"><is>{text}</is></c>'
+        # XlsxWriter's per-cell writer copies text that starts with "<r>" and ends with "</r>" into
+        # the XML unescaped (its rich-string form), which breaks the workbook for a cell such as
+        # "<r><b>x</r>"; here it is escaped like any other text, so the cell holds the text as is.
         space = ' xml:space="preserve"' if preserve[0].search(text) or preserve[1].search(text) else ""
         return f' t="inlineStr"><is><t{space}>{escape_data(text)}</t></is></c>'
 
