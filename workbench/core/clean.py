@@ -368,9 +368,18 @@ def clean_answers(
     dup_col: list[str | None] = []
     enters_col: list[bool] = []
     events = []
+    non_answer_verdicts, excluded = decisions.non_answer, decisions.exclude
     for i in range(n):
         aid, src, row = ids[i], sources[i], rows[i]
         masked, masks, code, notes, _ = results[i]
+        if (code is None and duplicates[i] is None and not masks and not notes
+                and aid not in non_answer_verdicts and aid not in excluded):  # fmt: skip
+            # The common case, nothing to flag, keep or decide: what the steps below give, directly.
+            events.append(("answer", aid, src, row, STAGE, "kept", "cleaned", "cleaned"))
+            flags_col.append([])
+            dup_col.append(None)
+            enters_col.append(True)
+            continue
         flags: list[str] = []
         recorded = False
         if code is not None:

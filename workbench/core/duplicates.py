@@ -64,6 +64,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 
 import numpy as np
+import pandas as pd
 from rapidfuzz import process
 from rapidfuzz.distance import Indel
 
@@ -113,7 +114,10 @@ def _signatures(keys: Sequence[str]) -> np.ndarray:
         hashes, owner = hashes[valid], owner[valid]
         first_window = np.searchsorted(owner, np.arange(len(part)))
         # One row per hash function: reduceat runs along contiguous memory.
-        values = (a[:, None] * hashes[None, :] + b[:, None]) >> np.uint64(32)
+        # In place: one (permutations x windows) array instead of three (same uint64 arithmetic).
+        values = np.multiply.outer(a, hashes)
+        values += b[:, None]
+        values >>= np.uint64(32)
         out[first : first + len(part)] = np.minimum.reduceat(values, first_window, axis=1).T
     return out
 
@@ -253,6 +257,48 @@ def _check(
             links[index] = (first, float(scores[pos]))
 
 
+def _exact_duplicates(
+    respondents: Sequence[str],
+    questions: Sequence[str],
+    keys: Sequence[str],
+    min_chars: int,
+    result: list[tuple[str, int, float] | None],
+) -> None:
+    """Same-respondent repeats and long identical copies (rules in the module docstring), into ``result``.
+
+    Each answer with a key is compared with the first answer holding the same
+    key from the same respondent and from the same question: factorised codes
+    and one ``numpy.unique`` per pairing (first occurrences) instead of two
+    dictionary look-ups per answer.
+    """
+    lengths = np.fromiter(map(len, keys), dtype=np.int64, count=len(keys))
+    live = np.flatnonzero(lengths > 0)
+    if not len(live):
+        return
+    key_codes = pd.factorize(np.asarray(keys, dtype=object)[live])[0].astype(np.int64)
+    respondent = pd.factorize(np.asarray(respondents, dtype=object))[0].astype(np.int64)
+    question = pd.factorize(np.asarray(questions, dtype=object))[0].astype(np.int64)
+    span = int(key_codes.max()) + 1
+
+    def first_with_same(codes: np.ndarray) -> np.ndarray:
+        _, first, inverse = np.unique(codes[live] * span + key_codes, return_index=True, return_inverse=True)
+        return live[first[inverse.ravel()]]
+
+    respondent_first = first_with_same(respondent)
+    question_first = first_with_same(question)
+    repeat = (respondent_first != live) & (question[respondent_first] != question[live])
+    copy = (
+        ~repeat
+        & (question_first != live)
+        & (lengths[live] >= min_chars)
+        & (respondent[question_first] != respondent[live])
+    )
+    for i, first in zip(live[repeat].tolist(), respondent_first[repeat].tolist(), strict=True):
+        result[i] = ("same_respondent_repeat", first, 1.0)
+    for i, first in zip(live[copy].tolist(), question_first[copy].tolist(), strict=True):
+        result[i] = ("duplicate", first, 1.0)
+
+
 def find_duplicates(
     respondents: Sequence[str],
     questions: Sequence[str],
@@ -299,18 +345,7 @@ def find_duplicates(
             if key is None:
                 key = cache[text] = duplicate_key(text)
             keys.append(key)
-    first_by_respondent: dict[tuple[str, str], int] = {}
-    first_by_question: dict[tuple[str, str], int] = {}
-    for i in range(n):
-        key = keys[i]
-        if not key:
-            continue
-        respondent_first = first_by_respondent.setdefault((respondents[i], key), i)
-        question_first = first_by_question.setdefault((questions[i], key), i)
-        if respondent_first != i and questions[respondent_first] != questions[i]:
-            result[i] = ("same_respondent_repeat", respondent_first, 1.0)
-        elif question_first != i and len(key) >= min_chars and respondents[question_first] != respondents[i]:
-            result[i] = ("duplicate", question_first, 1.0)
+    _exact_duplicates(respondents, questions, keys, min_chars, result)
 
     # Near-duplicates among the distinct long keys not already linked.
     distinct: dict[str, int] = {}
