@@ -271,3 +271,28 @@ def test_min_freq_filter_and_reference_group() -> None:
     assert c_a + b_a >= 25
     ref = chi2_contingency(np.array([[c_a, b_a], [c_n - c_a, b_n - b_a]]), lambda_="log-likelihood", correction=False)
     assert tables[1].table.set_index("term").loc["alpha", "g2"] == pytest.approx(ref.statistic)
+
+
+def test_table_order_is_pandas_sort_by_g2_then_term() -> None:
+    """Reference library: pandas ``DataFrame.sort_values(["g2", "term"], ascending=[False, True],
+    kind="stable")``. Terms with equal counts tie on G² (several tie at 0: the same share on both
+    sides) and must come in code-point order of the term, including non-ASCII and upper-case terms."""
+    rng = np.random.default_rng(11)
+    terms = ["zeta", "Äpfel", "alpha", "beta", "Zug", "éte", "a", "ab", "b", "ß"]
+    n = 240
+    groups = np.where(np.arange(n) < n // 2, "A", "B")
+    rows = []
+    for i in range(n):
+        # Pairs of terms share the same mention pattern, so their G² ties exactly.
+        row = {t: 1 for j, t in enumerate(terms) if (i + j // 2) % (2 + j // 2) == 0}
+        if groups[i] == "A" and rng.random() < 0.3:
+            row["zeta"] = 1
+        rows.append(row)
+    ids = np.array([f"r{i}" for i in range(n)], dtype=object)
+    counts = _counts(rows, [f"{i}|q" for i in ids])
+    rc = by_respondent(counts, ids)
+    table = keyness_tables(group_sums(rc, groups, ["A", "B"], "respondents"), rc.terms, targets=[0], min_freq=1)[0].table
+    assert table["g2"].duplicated().any()
+    expected = table.sort_values(["g2", "term"], ascending=[False, True], kind="stable").reset_index(drop=True)
+    pd.testing.assert_frame_equal(table, expected)
+    assert list(table.index) == list(range(len(table)))

@@ -367,8 +367,11 @@ def _compare_grouping(
             + ("; weighted: G² uses counts rescaled to Kish's effective sample size (an approximation)" if sums.weighted else ""),
         )
         all_tables.append((name, grouping.name, unit.name, kt))
-        over = kt.table[kt.table["significant"] & (kt.table["direction"] == "over")]
-        under = kt.table[kt.table["significant"] & (kt.table["direction"] == "under")]
+        significant = kt.table["significant"].to_numpy(dtype=bool)
+        direction = kt.table["direction"].to_numpy()
+        # Only the first five of each side are named: no filtered copy of the whole table.
+        over = kt.table["term"].iloc[np.flatnonzero(significant & (direction == "over"))[:5]]
+        under = kt.table["term"].iloc[np.flatnonzero(significant & (direction == "under"))[:5]]
         summary_rows.append(
             {
                 "table": name,
@@ -380,8 +383,8 @@ def _compare_grouping(
                 "n_reference": kt.n_reference,
                 "terms_tested": kt.tested,
                 "significant": kt.significant,
-                "top_over": ", ".join(over["term"].head(5).astype(str)),
-                "top_under": ", ".join(under["term"].head(5).astype(str)),
+                "top_over": ", ".join(over.astype(str)),
+                "top_under": ", ".join(under.astype(str)),
                 "counting": counting,
             }
         )
@@ -460,10 +463,12 @@ def _findings(all_tables: list[tuple[str, str, str, KeynessTable]], languages: l
     tagged = tuple(f"{lang}:" for lang in languages)
     rows = []
     for name, grouping, unit, kt in all_tables:
-        table = kt.table[kt.table["significant"] & (kt.table["direction"] == "over")]
-        if unit == POOLED:
-            table = table[~table["term"].astype(str).str.startswith(tagged)]
-        for _, row in table.head(3).iterrows():
+        # Tables are sorted by G², so the first three rows that qualify are the strongest.
+        picked = np.flatnonzero(kt.table["significant"].to_numpy(dtype=bool) & (kt.table["direction"].to_numpy() == "over"))
+        if unit == POOLED and len(picked):
+            terms = pd.Series(kt.table["term"].to_numpy()[picked], dtype=object).astype(str)
+            picked = picked[~terms.str.startswith(tagged).to_numpy(dtype=bool)]
+        for _, row in kt.table.iloc[picked[:3]].iterrows():
             rows.append((float(row["g2"]), name, grouping, unit, kt, row))
     rows.sort(key=lambda r: -r[0])
     first_per_group = {}
