@@ -86,6 +86,7 @@ import unicodedata
 from collections import defaultdict
 from dataclasses import dataclass
 
+import numpy as np
 import pandas as pd
 
 from workbench.core import corpus as C
@@ -188,6 +189,20 @@ def _read_hint(value: object, table: dict[str, str]) -> str | None:
     if text in table:
         return table[text]
     return table.get(re.split(r"[-_ ]", text, maxsplit=1)[0])
+
+
+def _events(answers: pd.DataFrame, found: list[tuple[int, str, str, str]]) -> list[tuple]:
+    """Ledger events from ``(position, status, code, message)``: id, source and row read for those answers only."""
+    if not found:
+        return []
+    at = [position for position, *_rest in found]
+    ids = answers[C.ANSWER_ID].astype(str).take(at).tolist()
+    sources = answers[C.SOURCE].astype(str).take(at).tolist()
+    rows = [int(r) for r in answers[C.ROW].take(at).tolist()]
+    return [
+        ("answer", aid, src, row, STAGE, status, code, message)
+        for aid, src, row, (_p, status, code, message) in zip(ids, sources, rows, found, strict=True)
+    ]
 
 
 def _as_list(value: object) -> list[str]:
@@ -309,20 +324,40 @@ def identify_answers(
     settings = study.identify
     expected = list(study.languages.expected)
     check_languages(study, make_detector(settings.detector))
-    out = answers.copy()
+    # A shallow copy: pandas copies on write, so the new columns leave the caller's table alone.
+    out = answers.copy(deep=False)
     n = len(out)
     order = {code: i for i, code in enumerate(expected)}
     hint_table = _hint_table(study)
     fallback = study.languages.fallback
     scripts = scripts_of(expected)
 
-    ids = out[C.ANSWER_ID].astype(str).tolist() if n else []
-    sources = out[C.SOURCE].astype(str).tolist() if n else []
-    rows = [int(r) for r in out[C.ROW].tolist()] if n else []
-    cleaned = out[C.CLEAN_TEXT].tolist() if n else []
-    # Flags may come back from Parquet as arrays; read them as plain lists.
-    flags_in = [_as_list(f) for f in out[C.FLAGS].tolist()] if n and C.FLAGS in out else [[] for _ in range(n)]
-    hints = out[C.HINT].tolist() if C.HINT in out else [None] * n
+    # Memory: no Python string per answer for ids, sources, rows or texts. Cleaned texts are
+    # factorised on their Arrow array (only distinct texts become Python strings), answers with a
+    # language decision are found column-wise, and id, source and row are fetched only for the
+    # answers that get a ledger event (see ``_events``).
+    decided_at = (
+        out[C.ANSWER_ID].astype(str).isin(list(decisions.language)).to_numpy(dtype=bool)
+        if n and decisions.language else np.zeros(n, dtype=bool)
+    )
+    decided_ids = out[C.ANSWER_ID].astype(str).to_numpy(dtype=object)[decided_at] if decided_at.any() else []
+    decided_of = dict(zip(np.flatnonzero(decided_at).tolist(), decided_ids, strict=True))
+    if n:
+        text_codes, text_uniques = pd.factorize(out[C.CLEAN_TEXT], use_na_sentinel=True)
+        distinct_cleaned = [v if isinstance(v, str) else "" for v in np.asarray(text_uniques, dtype=object).tolist()]
+        text_codes = text_codes.tolist()
+    else:
+        text_codes, distinct_cleaned = [], []
+    # Flags may come back from Parquet as arrays; read them as plain lists (see the loop below).
+    flags_in = out[C.FLAGS].to_numpy(dtype=object) if n and C.FLAGS in out else np.full(n, None, dtype=object)
+    # Hints repeat (a handful of codes): each answer points at one of the distinct values.
+    if C.HINT in out and n:
+        hint_codes, hint_uniques = pd.factorize(out[C.HINT])
+        hint_values = np.asarray(hint_uniques, dtype=object).tolist() + [None]  # code -1 (missing) -> None
+        hints = [hint_values[c] for c in hint_codes.tolist()]
+        del hint_codes, hint_uniques
+    else:
+        hints = [None] * n
 
     # Which distinct texts need the detector.
     reporter.update(STAGE, 0, n, "preparing texts")
@@ -331,22 +366,31 @@ def identify_answers(
     letters: list[int] = []
     distinct: dict[str, int] = {}
     # Survey answers repeat: prepare each distinct cleaned text once.
-    seen: dict[str, tuple[str, int]] = {}
+    prepared_of: list[tuple[str, int] | None] = [None] * len(distinct_cleaned)
+    empty_prepared: tuple[str, int] | None = None
     for i in range(n):
-        junk = any(f in JUNK_CODES for f in flags_in[i])
-        if ids[i] in valid_decisions or junk:
+        value = flags_in[i]
+        junk = value is not None and any(f in JUNK_CODES for f in _as_list(value))
+        if (i in decided_of and decided_of[i] in valid_decisions) or junk:
             texts.append(None)
             letters.append(0)
             continue
-        source_text = cleaned[i] if isinstance(cleaned[i], str) else ""
-        if source_text not in seen:
-            prepared = detection_text(source_text, scripts)
-            seen[source_text] = (prepared, count_letters(prepared))
-        text, count = seen[source_text]
+        code = text_codes[i]
+        if code < 0:  # a missing text reads as ""
+            if empty_prepared is None:
+                blank = detection_text("", scripts)
+                empty_prepared = (blank, count_letters(blank))
+            text, count = empty_prepared
+        else:
+            if prepared_of[code] is None:
+                prepared = detection_text(distinct_cleaned[code], scripts)
+                prepared_of[code] = (prepared, count_letters(prepared))
+            text, count = prepared_of[code]  # type: ignore[misc]
         texts.append(text)
         letters.append(count)
         if count >= settings.min_letters and text not in distinct:
             distinct[text] = len(distinct)
+    del prepared_of, distinct_cleaned, text_codes
     unique = list(distinct)
     results = (mapper or LocalMapper()).map(
         identify_texts, unique, identify_recipe(study), stage=STAGE,
@@ -362,21 +406,25 @@ def identify_answers(
     mixed_col: list[bool] = []
     second_col: list[str | None] = []
     flags_out: list[list[str]] = []
-    events = []
+    #: (answer position, status, code, message); id, source and row are added in ``_events``.
+    events: list[tuple[int, str, str, str]] = []
     for i in range(n):
-        aid, src, row = ids[i], sources[i], rows[i]
-        flags = list(flags_in[i])
+        value = flags_in[i]
+        # The clean stage's list is shared when nothing is added (no copy per answer; lists are
+        # never changed in place); arrays read back from Parquet become lists.
+        flags = value if type(value) is list and all(type(f) is str for f in value) else _as_list(value)
         mixed, second = False, None
-        decided = decisions.language.get(aid)
+        aid = decided_of.get(i)
+        decided = decisions.language.get(aid) if aid is not None else None
         if decided is not None and aid not in valid_decisions:
             events.append(
-                ("answer", aid, src, row, STAGE, "flagged", "decision_ignored",
+                (i, "flagged", "decision_ignored",
                  f"language decision '{decided}' ignored: not in languages.expected ({', '.join(expected)})")
             )  # fmt: skip
             decided = None
         if decided is not None:
             label, confidence, source = decided, 1.0, "decision"
-            events.append(("answer", aid, src, row, STAGE, "kept", "language_by_decision", f"language set to '{decided}' by decision"))
+            events.append((i, "kept", "language_by_decision", f"language set to '{decided}' by decision"))
         else:
             text = texts[i]
             guess, prob = UND, 0.0
@@ -386,9 +434,9 @@ def identify_answers(
                 if index in mixed_info:
                     guess, second, prob, tally = mixed_info[index]
                     mixed = True
-                    flags.append("mixed_language")
+                    flags = [*flags, "mixed_language"]
                     spread = ", ".join(f"{k} {v} letters" for k, v in tally.items())
-                    events.append(("answer", aid, src, row, STAGE, "flagged", "mixed_language", f"mixed languages: {spread}"))
+                    events.append((i, "flagged", "mixed_language", f"mixed languages: {spread}"))
             if guess != UND and (prob >= settings.min_confidence or mixed):
                 label, confidence, source = guess, prob, "detector"
             else:
@@ -412,17 +460,18 @@ def identify_answers(
                     message = f"language undetermined: {reason}"
                     if fallback == "hint":
                         message += "; no usable hint"
-                    events.append(("answer", aid, src, row, STAGE, "kept", "language_und", message))
+                    events.append((i, "kept", "language_und", message))
                 else:
                     message = f"language '{label}' from the {source}: {reason}"
-                    events.append(("answer", aid, src, row, STAGE, "kept", f"language_from_{source}", message))
+                    events.append((i, "kept", f"language_from_{source}", message))
         languages.append(label)
         confidences.append(float(confidence))
         sources_col.append(source)
         mixed_col.append(mixed)
         second_col.append(second)
         flags_out.append(flags)
-    ledger.extend(events)
+    ledger.extend(_events(out, events))
+    del events
 
     out[C.LANGUAGE] = pd.Series(languages, index=out.index, dtype=str)
     out[C.CONFIDENCE] = pd.Series(confidences, index=out.index, dtype=float)

@@ -467,7 +467,9 @@ def _assemble(
         pieces.clear()
 
     # rows: one base event each, the dropped ones, then one flagged event per problem
-    _emit(ledger, "row", lambda lo, hi: keys[lo:hi], sources, rows, np.concatenate(parts.no_text).astype(np.intp),
+    # Keys straight from the tables' id columns: the ledger keeps their Arrow buffers, no str per event.
+    _emit(ledger, "row", lambda lo, hi: respondents[RESPONDENT_ID].array[lo:hi], sources, rows,
+          np.concatenate(parts.no_text).astype(np.intp),
           np.array(["read", "no_text"], dtype=object),
           np.array(["read", "kept as a respondent; every text column is empty"], dtype=object))
     ledger.extend(parts.dropped)
@@ -480,7 +482,7 @@ def _assemble(
     ledger.extend([("row", keys[p], sources[p], int(rows[p]), STAGE, "flagged", code, message) for p, code, message in flags])
 
     # answers: one base event each, then the truncated ones
-    _emit(ledger, "answer", lambda lo, hi: answer_ids.slice(lo, hi - lo).to_pylist(), sources[pos], rows[pos], q,
+    _emit(ledger, "answer", lambda lo, hi: answers[ANSWER_ID].array[lo:hi], sources[pos], rows[pos], q,
           np.array(["read"] * len(names), dtype=object),
           np.array([f"read from column '{name}'" for name in names], dtype=object))
     for index in np.flatnonzero(cut).tolist():

@@ -10,8 +10,17 @@ Events are stored column-wise in blocks: a stage that accounts for a million
 answers hands over arrays (:meth:`Ledger.bulk`) rather than a million tuples,
 which keeps the ledger of a 1M-row run to tens of megabytes. Single events
 (:meth:`Ledger.row`, :meth:`Ledger.answer`, :meth:`Ledger.extend`) are
-gathered into a block when the next bulk block or a read arrives, so the order
-of events is kept.
+gathered into a block when the next bulk block or a read arrives, or as soon
+as :data:`LOOSE_LIMIT` of them wait, so the order of events is kept.
+
+Memory: a bulk block keeps its keys as one Arrow string column instead of a
+Python ``str`` per event (a million answer ids are ~75 MB as objects, ~35 MB
+in Arrow), and loose events (an 8-tuple plus a key string each, ~200 bytes)
+become a block when a stage hands over a stage's worth of them. A block of
+loose events is typed by pandas (its text columns are ``str``); the combined
+:meth:`Ledger.frame` has exactly the column types it had before either
+change: ``str`` text columns once any loose events were gathered (pandas
+combines ``str`` and object columns into ``str``), object columns otherwise.
 """
 
 from __future__ import annotations
@@ -29,6 +38,24 @@ _SEVERITY = {"kept": 0, "flagged": 1, "dropped": 2}
 _STATUS_BY_SEVERITY = np.array(["kept", "flagged", "dropped"], dtype=object)
 
 LEDGER_COLUMNS = ["level", "key", "source", "row", "stage", "status", "code", "message"]
+#: Loose events gathered into a block once this many wait (a stage's tuples are freed with it).
+LOOSE_LIMIT = 50_000
+#: Bulk blocks of at least this many events keep their keys as Arrow strings.
+_ARROW_KEYS_FROM = 1_000
+
+
+def _key_column(keys: Any, length: int) -> Any:
+    """Keys of a bulk block: an Arrow-backed ``str`` array for large blocks, else an object array."""
+    if isinstance(keys, pd.Series | pd.api.extensions.ExtensionArray) and isinstance(keys.dtype, pd.StringDtype):
+        if len(keys) != length:
+            raise ValueError(f"ledger column has {len(keys)} values for {length} keys")
+        if not keys.isna().any():
+            # Shares the caller's Arrow buffers (e.g. the answers table's id column): no copy at all.
+            return pd.array(keys, dtype="str")
+        return _column(keys, length)
+    if length >= _ARROW_KEYS_FROM and all(isinstance(k, str) for k in keys):
+        return pd.array(keys, dtype="str")
+    return _column(keys, length)
 
 
 def _column(value: Any, length: int) -> np.ndarray:
@@ -48,6 +75,8 @@ class Ledger:
     def __init__(self, events: Iterable[Event] | None = None) -> None:
         self._blocks: list[pd.DataFrame] = []
         self._loose: list[Event] = list(events or [])
+        #: Whether a block of loose events (``str`` text columns) was ever made; see the module docstring.
+        self._typed = False
 
     # ------------------------------------------------------------------ writing
 
@@ -62,6 +91,8 @@ class Ledger:
     def extend(self, events: Iterable[Event]) -> None:
         """Record events given as ``(level, key, source, row, stage, status, code, message)`` tuples."""
         self._loose.extend(events)
+        if len(self._loose) >= LOOSE_LIMIT:
+            self._flush()
 
     def bulk(
         self,
@@ -84,7 +115,7 @@ class Ledger:
             pd.DataFrame(
                 {
                     "level": _column(level, n),
-                    "key": _column(keys, n),
+                    "key": _key_column(keys, n),
                     "source": _column(source, n),
                     "row": rows,
                     "stage": _column(stage, n),
@@ -102,6 +133,7 @@ class Ledger:
             block["row"] = block["row"].astype(np.int64)
             self._blocks.append(block)
             self._loose = []
+            self._typed = True
 
     # ------------------------------------------------------------------ positions
 
@@ -118,6 +150,7 @@ class Ledger:
         frame = self.frame()
         if mark:
             copy._blocks = [frame.iloc[:mark]]
+            copy._typed = self._typed
         return copy
 
     # ------------------------------------------------------------------ reading
@@ -135,7 +168,11 @@ class Ledger:
             return pd.DataFrame({c: pd.Series(dtype=np.int64 if c == "row" else object) for c in LEDGER_COLUMNS})
         if len(self._blocks) > 1:
             self._blocks = [pd.concat(self._blocks, ignore_index=True, copy=False)]
-        return self._blocks[0]
+        frame = self._blocks[0]
+        if not self._typed and isinstance(frame["key"].dtype, pd.StringDtype):
+            # Only bulk blocks so far: their keys were object before they were kept as Arrow strings.
+            frame["key"] = frame["key"].astype(object)
+        return frame
 
     def final_status(self, level: Level) -> dict[str, str]:
         """The most severe status per entity of one level."""

@@ -609,15 +609,21 @@ def extract_terms(
     """
     _require(answers)
     reporter.update(STAGE, 0, 0, "preparing languages")
-    answers = answers.copy()
-    languages = answers[LANGUAGE].fillna(UNDETERMINED).astype(str).to_numpy()
-    texts = answers[CLEAN_TEXT].fillna("").astype(str).to_numpy()
-    # One key per (language, text): identical cleaned answers are processed once.
-    keyed = np.fromiter((f"{lang}\x1f{text}" for lang, text in zip(languages, texts)), dtype=object, count=len(texts))
-    codes, uniques = pd.factorize(keyed)
-    split = [u.split("\x1f", 1) for u in uniques]
-    unique_langs = np.array([u[0] for u in split], dtype=object)
-    unique_texts = [u[1] for u in split]
+    # A shallow copy: pandas copies on write, so adding the terms column leaves the caller's table alone.
+    answers = answers.copy(deep=False)
+    # One key per (language, text): identical cleaned answers are processed once. The two columns are
+    # factorised separately (on their Arrow arrays: no Python string per answer) and their codes
+    # combined; factorising the pair codes keeps the order of first appearance.
+    language_codes, language_uniques = pd.factorize(answers[LANGUAGE].fillna(UNDETERMINED).astype(str))
+    text_codes, text_uniques = pd.factorize(answers[CLEAN_TEXT].fillna("").astype(str))
+    pair_codes = language_codes.astype(np.int64) * max(len(text_uniques), 1) + text_codes
+    del language_codes, text_codes
+    codes, pairs = pd.factorize(pair_codes)
+    del pair_codes
+    unique_langs = np.asarray(language_uniques, dtype=object)[pairs // max(len(text_uniques), 1)]
+    unique_texts = np.asarray(text_uniques, dtype=object)[pairs % max(len(text_uniques), 1)].tolist()
+    del text_uniques, pairs
+    uniques = unique_texts  # one entry per distinct (language, text)
 
     excluded = {k for k, v in decisions.exclude.items() if v}
     enters = answers[ENTERS_WEIGHTING].eq(True).to_numpy().copy()
@@ -652,7 +658,13 @@ def extract_terms(
     for lang, backend in summary.backends.items():
         reporter.update(STAGE, total, total, f"{lang}: {backend}")
 
-    answers[TERMS] = [list(unique_terms[c]) for c in codes]  # type: ignore[arg-type]
+    # Answers with the same (language, text) share one list object: readers never change a term
+    # list, and a million answers with half their texts repeated save a list each.
+    shared = np.empty(len(unique_terms), dtype=object)
+    for i, t in enumerate(unique_terms):
+        shared[i] = t
+    answers[TERMS] = shared[codes] if len(codes) else np.empty(0, dtype=object)
+    del shared
 
     vocabularies: dict[str, pd.DataFrame] = {}
     stop_hits: dict[str, pd.DataFrame] = {}
@@ -710,7 +722,7 @@ def _ledger_empty(answers: pd.DataFrame, ledger: Ledger) -> None:
     numbers = pd.to_numeric(rows[ROW], errors="coerce").fillna(0).astype(np.int64).to_numpy() if ROW in rows else 0
     ledger.bulk(
         "answer",
-        rows[ANSWER_ID].astype(str).to_numpy(),
+        rows[ANSWER_ID].astype(str),  # a str column: the ledger keeps it as Arrow strings
         sources,
         numbers,
         STAGE,
