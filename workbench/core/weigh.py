@@ -257,7 +257,10 @@ def weigh_corpus(
     warnings: list[str] = []
 
     enters = _entering(answers, study)
-    selected = answers.loc[enters]
+    # Only the columns weighing reads: selecting rows of the whole table would copy every text
+    # column (raw and clean text, ids, groups) of the selected answers for nothing.
+    needed = [c for c in (ANSWER_ID, LANGUAGE, TERMS, WEIGHT) if c in answers.columns]
+    selected = answers.loc[enters, needed]
     left_out = int((~enters).sum())
     if answers.empty:
         raise InputError(
