@@ -58,6 +58,7 @@ of digits costs linear time too.
 
 from __future__ import annotations
 
+import bisect
 import re
 from collections.abc import Callable, Iterable, Sequence
 from typing import NamedTuple
@@ -257,11 +258,18 @@ def find_personal_data(text: str, kinds: Iterable[str], regions: Sequence[str] =
     if len(found) < 2:
         return found
     found.sort(key=lambda s: (-_PRIORITY[s.type], -(s.end - s.start), s.start))
+    # Kept spans never overlap, so sorted by start they are sorted by end too: a new span
+    # overlaps one of them iff it overlaps the last kept span starting before its end.
+    # (Checking every kept span was quadratic: 1M characters of "aa@aa." took 9 minutes.)
+    starts: list[int] = []
     kept: list[Span] = []
     for span in found:
-        if all(span.end <= k.start or span.start >= k.end for k in kept):
-            kept.append(span)
-    return sorted(kept, key=lambda s: s.start)
+        at = bisect.bisect_left(starts, span.end)
+        if at and kept[at - 1].end > span.start:
+            continue
+        starts.insert(at, span.start)
+        kept.insert(at, span)
+    return kept
 
 
 def mask_personal_data(
