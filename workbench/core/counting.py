@@ -22,10 +22,9 @@ import scipy.sparse as sp
 
 from workbench.core.counts import Counts
 from workbench.core.errors import InputError
+from workbench.core.settings import POOLED  # re-exported: counting.POOLED is used across the core
 from workbench.core.tfidf import VocabularyFilter, column_sums, document_frequency, row_reduce
 
-#: Name of the pooled corpus in every per-language dict.
-POOLED = "pooled"
 
 #: Counts per answer never approach 2**31; 4 bytes per stored entry instead of 8.
 COUNT_DTYPE = np.int32

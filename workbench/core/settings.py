@@ -21,6 +21,8 @@ from workbench.core.errors import SettingsError, did_you_mean
 #: Language codes termloom ships a profile for (see ``lang_profiles/``).
 LANGUAGE_CODE = re.compile(r"^[a-z]{2,3}$")
 UNDETERMINED = "und"
+#: Name of the pooled corpus (every language together) in every per-language dict.
+POOLED = "pooled"
 
 
 class _Section(BaseModel):

@@ -14,7 +14,6 @@ import numpy as np
 import pandas as pd
 
 from workbench.core import corpus as C
-from workbench.core.nonanswer import JUNK_CODES
 
 #: Pseudo-flags offered beside the real flag codes.
 SUSPECT = "suspect language"
@@ -146,6 +145,8 @@ class AnswerIndex:
         return self._fallback
 
     def _junk(self) -> np.ndarray:
+        from workbench.core.nonanswer import JUNK_CODES  # here, not at import: nonanswer loads emoji
+
         if "_junk" not in self._flag_masks:
             if C.FLAGS not in self.frame:
                 self._flag_masks["_junk"] = np.zeros(self.size, bool)

@@ -16,9 +16,8 @@ from typing import TYPE_CHECKING
 import pandas as pd
 
 from workbench.core.corpus import RESPONDENT_ID
-from workbench.core.counting import POOLED
 from workbench.core.pipeline import RunOutputs
-from workbench.core.settings import Study
+from workbench.core.settings import POOLED, Study
 
 if TYPE_CHECKING:
     from workbench.core.compare import CompareResult

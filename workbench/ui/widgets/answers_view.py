@@ -21,8 +21,6 @@ from textual.widgets import Input, Select, Static
 
 from workbench.core import corpus as C
 from workbench.core.errors import TermloomError
-from workbench.core.nonanswer import JUNK_CODES
-from workbench.core.pii import PLACEHOLDER_RE
 from workbench.core.profiles import load_profile
 from workbench.ui.answer_filter import ANY_FLAG, EXCLUDED, FALLBACK, SUSPECT, UNFLAGGED, AnswerIndex, AnswerQuery
 from workbench.ui.screens.answer_screen import AnswerScreen
@@ -35,6 +33,8 @@ from workbench.ui.widgets.view_base import ViewBase
 def highlight_placeholders(text: str) -> Text:
     """The text with every masking placeholder (``⟨email⟩``…) styled, so masks stand out."""
     shown = Text(text)
+    from workbench.core.pii import PLACEHOLDER_RE  # here, not at import: pii loads phonenumbers
+
     for match in PLACEHOLDER_RE.finditer(text):
         shown.stylize("bold reverse", match.start(), match.end())
     return shown
@@ -323,6 +323,8 @@ class AnswersView(ViewBase):
         if decided is not None:
             return decided
         flags = row.get(C.FLAGS)
+        from workbench.core.nonanswer import JUNK_CODES  # here, not at import: nonanswer loads emoji
+
         return bool(flags is not None and any(str(f) in JUNK_CODES for f in flags))
 
     def action_toggle_non_answer(self) -> None:

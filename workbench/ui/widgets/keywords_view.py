@@ -20,10 +20,10 @@ from textual.widget import Widget
 from textual.timer import Timer
 from textual.widgets import Select, Static
 
-from workbench.core.counting import POOLED
 from workbench.core.errors import TermloomError
 from workbench.core.pipeline import RunOutputs
 from workbench.core.progress import Reporter
+from workbench.core.settings import POOLED
 from workbench.ui import keyword_tables as K
 from workbench.ui.bars import bar
 from workbench.ui.screens.choice_screen import ChoiceScreen
