@@ -94,3 +94,26 @@ def test_minhash_blocking_recall_against_brute_force() -> None:
     assert found <= expected
     assert len(expected) >= 140
     assert len(found) >= 0.97 * len(expected)
+
+
+def test_near_duplicate_search_reports_progress_and_can_be_stopped() -> None:
+    """The long part of clean on large corpora tells the caller how far it is, and a caller
+    that raises (the reporter's cancel) stops it; the links do not depend on being watched."""
+    words = "train late coffee staff friendly price clean quiet window seat bed cabin".split()
+    texts = [" ".join(words[(i * 7 + j) % len(words)] for j in range(6 + i % 5)) + f" {i % 97}" for i in range(3000)]
+    args = ([f"r{i}" for i in range(3000)], ["q1"] * 3000, texts, [True] * 3000, 10, 0.9)
+    calls: list[tuple[str, int, int]] = []
+    watched = find_duplicates(*args, progress=lambda what, done, total: calls.append((what, done, total)))
+    assert watched == find_duplicates(*args)
+    kinds = {what for what, _, _ in calls}
+    assert any("hashing" in k for k in kinds) and any("comparing" in k for k in kinds)
+    assert all(0 <= done <= total for _, done, total in calls)
+
+    class Stop(Exception):
+        pass
+
+    def stop(_what: str, _done: int, _total: int) -> None:
+        raise Stop
+
+    with pytest.raises(Stop):
+        find_duplicates(*args, progress=stop)

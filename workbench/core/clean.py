@@ -360,6 +360,8 @@ def clean_answers(
         settings.near_duplicate_min_chars,
         settings.near_duplicate,
         keys=[r[4] for r in results],
+        # The bar stays full (the texts are cleaned); the message counts on, and Esc still cancels.
+        progress=lambda what, done, total: reporter.update(STAGE, n, n, f"{what}: {done:,} of {total:,}"),
     )
 
     sources = out[C.SOURCE].astype(str).tolist() if n else []

@@ -61,7 +61,7 @@ an exhaustive comparison (rapidfuzz ``process.cdist``).
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 
 import numpy as np
 import pandas as pd
@@ -91,7 +91,15 @@ def duplicate_key(text: str) -> str:
     return phrase_key(text)
 
 
-def _signatures(keys: Sequence[str]) -> np.ndarray:
+#: ``progress(what, done, total)``: called between blocks of the near-duplicate search.
+Progress = Callable[[str, int, int], None]
+
+
+def _quiet(_what: str, _done: int, _total: int) -> None:
+    return None
+
+
+def _signatures(keys: Sequence[str], progress: Progress = _quiet) -> np.ndarray:
     """MinHash signatures, one row of :data:`PERMUTATIONS` uint64 values per key (vectorised)."""
     rng = np.random.default_rng(20240601)
     # Multiply-shift hashing (Dietzfelbinger et al. 1997): odd 64-bit a, any b,
@@ -102,6 +110,8 @@ def _signatures(keys: Sequence[str]) -> np.ndarray:
     out = np.empty((len(keys), PERMUTATIONS), dtype=np.uint64)
     chunk = 500  # keys per pass: the (windows x permutations) temporaries stay near 50 MB
     for first in range(0, len(keys), chunk):
+        if first % (100 * chunk) == 0:
+            progress("hashing texts for near-duplicates", first, len(keys))
         part = [k.ljust(SHINGLE, "\0") for k in keys[first : first + chunk]]
         codes = np.frombuffer("".join(part).encode("utf-32-le"), dtype=np.uint32).astype(np.uint64)
         lengths = np.fromiter((len(k) for k in part), dtype=np.int64, count=len(part))
@@ -123,7 +133,7 @@ def _signatures(keys: Sequence[str]) -> np.ndarray:
 
 
 def find_near_duplicates(
-    keys: Sequence[str], groups: Sequence[Sequence[object]], threshold: float
+    keys: Sequence[str], groups: Sequence[Sequence[object]], threshold: float, progress: Progress = _quiet
 ) -> dict[int, tuple[int, float]]:
     """Near-duplicate links among distinct keys.
 
@@ -145,7 +155,7 @@ def find_near_duplicates(
     n = len(keys)
     if n < 2:
         return {}
-    bands = _band_buckets(_signatures(keys))
+    bands = _band_buckets(_signatures(keys, progress))
     lengths = np.fromiter((len(k) for k in keys), dtype=np.int64, count=n)
     labels = [g if isinstance(g, set) else set(g) for g in groups]
     links: dict[int, tuple[int, float]] = {}
@@ -155,6 +165,7 @@ def find_near_duplicates(
     step = max(1024, _BLOCK_PAIRS // (BANDS * MAX_CANDIDATES))
     for lo in range(0, n, step):
         hi = min(n, lo + step)
+        progress("comparing near-duplicate candidates", lo, n)
         later, earlier = _candidates(bands, lengths, lo, hi, 1.0 - threshold)
         _check(keys, labels, later, earlier, threshold, links)
     return links
@@ -308,6 +319,7 @@ def find_duplicates(
     threshold: float,
     *,
     keys: Sequence[str] | None = None,
+    progress: Progress = _quiet,
 ) -> list[tuple[str, int, float] | None]:
     """Duplicate finding for every answer, in input order.
 
@@ -325,6 +337,10 @@ def find_duplicates(
     keys
         Per answer, its :func:`duplicate_key` when the caller has it already
         (only eligible answers' keys are read); computed here otherwise.
+    progress
+        Called as ``progress(what, done, total)`` during the near-duplicate
+        search, which is the long part on large corpora (a caller's progress
+        bar; it may raise to cancel).
 
     Returns
     -------
@@ -357,7 +373,7 @@ def find_duplicates(
         distinct.setdefault(key, i)
         labels.setdefault(key, set()).update((("q", questions[i]), ("r", respondents[i])))
     ordered = list(distinct)
-    links = find_near_duplicates(ordered, [labels[k] for k in ordered], threshold)
+    links = find_near_duplicates(ordered, [labels[k] for k in ordered], threshold, progress)
     if links:
         def root(index: int) -> tuple[int, float]:
             earlier, score = links[index]
